@@ -1,0 +1,291 @@
+"""Reading recordings: WAV and FLAC through soundfile, block by block, with one gatekeeper.
+
+Every sample the analysis sees passes through :func:`iter_blocks`, which rejects non-finite
+values and truncated files with an :class:`~fieldtl.errors.InputError` naming the file.
+:class:`SampleStats` watches the same blocks to report peak, clipping, DC offset and digital
+silence without reading the file a second time.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from collections.abc import Iterable, Iterator
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import soundfile
+
+from fieldtl.errors import InputError
+from fieldtl.findings import Finding
+
+SUPPORTED_FORMATS = ("WAV", "WAVEX", "FLAC")
+SUPPORTED_SUBTYPES = ("PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE")
+MIN_SAMPLE_RATE_HZ = 44_100
+MAX_SAMPLE_RATE_HZ = 96_000
+DEFAULT_BLOCK_FRAMES = 65_536
+
+# Clipping: a run of at least this many consecutive samples at or above NEAR_FULL_SCALE
+# (common practice: single full-scale samples can be legitimate peaks, runs are not).
+CLIP_RUN_SAMPLES = 3
+NEAR_FULL_SCALE = 0.999
+DC_OFFSET_LIMIT = 0.01        # |mean| above 1 % of full scale (-40 dBFS) is flagged (common practice)
+DROPOUT_MIN_S = 0.010         # exact-zero runs of 10 ms or more inside a take suggest dropouts (common practice)
+
+
+@dataclass(frozen=True, slots=True)
+class Recording:
+    """A validated, opened-by-name audio file and the channel chosen for analysis."""
+
+    path: str
+    sample_rate_hz: int
+    frames: int
+    channels: int
+    channel: int
+    format: str
+    subtype: str
+
+    @property
+    def name(self) -> str:
+        return Path(self.path).name
+
+    @property
+    def duration_s(self) -> float:
+        return self.frames / self.sample_rate_hz
+
+
+def open_recording(path: str | Path, *, channel: int = 0) -> Recording:
+    """Check that ``path`` is a usable WAV/FLAC file and describe it; reads the header only.
+
+    Raises InputError (one line, naming the file) for a missing, empty or non-audio file, an
+    unsupported format or sample rate, a file with no samples, or a channel that does not exist.
+    """
+    file = Path(path)
+    name = file.name
+    if not file.exists():
+        raise InputError(f"{name}: file not found ({file})")
+    if file.is_dir():
+        raise InputError(f"{name}: is a folder, not an audio file")
+    if file.stat().st_size == 0:
+        raise InputError(f"{name}: file is empty")
+    try:
+        info = soundfile.info(str(file))
+    except (RuntimeError, soundfile.LibsndfileError, OSError) as exc:
+        raise InputError(f"{name}: not a readable WAV or FLAC file ({_short(exc)})") from None
+    if info.format not in SUPPORTED_FORMATS:
+        raise InputError(f"{name}: format {info.format} is not supported; use WAV or FLAC")
+    if info.subtype not in SUPPORTED_SUBTYPES:
+        raise InputError(f"{name}: sample format {info.subtype} is not supported; use 16/24/32-bit "
+                         "integer or 32/64-bit float")
+    if not MIN_SAMPLE_RATE_HZ <= info.samplerate <= MAX_SAMPLE_RATE_HZ:
+        raise InputError(f"{name}: sample rate {info.samplerate} Hz is outside "
+                         f"{MIN_SAMPLE_RATE_HZ}-{MAX_SAMPLE_RATE_HZ} Hz")
+    if info.frames <= 0:
+        raise InputError(f"{name}: contains no audio samples")
+    missing_bytes = _wav_missing_bytes(file) if info.format in ("WAV", "WAVEX") else 0
+    if missing_bytes > 0:
+        raise InputError(f"{name}: truncated file: the header declares {missing_bytes} more bytes of audio "
+                         "than the file holds")
+    if not 0 <= channel < info.channels:
+        raise InputError(f"{name}: channel {channel + 1} requested but the file has {info.channels} "
+                         f"channel{'s' if info.channels > 1 else ''}")
+    return Recording(path=str(file), sample_rate_hz=int(info.samplerate), frames=int(info.frames),
+                     channels=int(info.channels), channel=channel, format=info.format,
+                     subtype=info.subtype)
+
+
+def iter_blocks(recording: Recording, *, block_frames: int = DEFAULT_BLOCK_FRAMES) -> Iterator[np.ndarray]:
+    """Yield the chosen channel as float64 blocks scaled to +-1 full scale.
+
+    Memory stays at one block whatever the file length. Raises InputError if a block holds
+    NaN or infinity, or if the file ends before the frame count its header declares.
+    Does not resample, remove DC or detect clipping (see SampleStats).
+    """
+    frames_read = 0
+    try:
+        with soundfile.SoundFile(recording.path) as handle:
+            for block in handle.blocks(blocksize=block_frames, dtype="float64", always_2d=True):
+                samples = np.ascontiguousarray(block[:, recording.channel])
+                if not np.all(np.isfinite(samples)):
+                    bad_s = (frames_read + int(np.argmin(np.isfinite(samples)))) / recording.sample_rate_hz
+                    raise InputError(f"{recording.name}: contains NaN or infinite samples (first at "
+                                     f"{bad_s:.3f} s)")
+                frames_read += samples.size
+                yield samples
+    except (RuntimeError, soundfile.LibsndfileError, OSError) as exc:
+        raise InputError(f"{recording.name}: damaged or truncated file: reading stopped after "
+                         f"{frames_read} frames ({_short(exc)})") from None
+    if frames_read < recording.frames:
+        raise InputError(f"{recording.name}: truncated file: header declares {recording.frames} frames, "
+                         f"only {frames_read} could be read")
+
+
+def read_samples(recording: Recording, *, max_duration_s: float = 600.0) -> np.ndarray:
+    """The whole chosen channel as one float64 array, for short takes (decays, calibrations)."""
+    if recording.duration_s > max_duration_s:
+        raise InputError(f"{recording.name}: {recording.duration_s:.0f} s is longer than the "
+                         f"{max_duration_s:.0f} s allowed for this kind of take")
+    return np.concatenate(list(iter_blocks(recording)))
+
+
+def file_sha256(path: str | Path) -> str:
+    """Hex SHA-256 of the file's bytes (provenance; the store keeps it beside each take)."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for chunk in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+@dataclass(frozen=True, slots=True)
+class SignalFacts:
+    """What a recording showed, for QA: all amplitudes relative to full scale (1.0)."""
+
+    duration_s: float
+    peak: float
+    peak_dbfs: float
+    clipped_samples: int
+    clip_runs: int
+    dc_offset: float
+    zero_fraction: float
+    longest_zero_run_s: float
+    findings: tuple[Finding, ...]
+
+
+class _RunCounter:
+    """Counts runs of True in a boolean stream split across blocks."""
+
+    def __init__(self, *, min_length: int) -> None:
+        self.min_length = min_length
+        self.runs = 0           # closed runs of at least min_length
+        self.samples = 0        # samples in those runs
+        self.longest = 0        # longest run seen, of any length
+        self._open = 0          # length of the run still open at the end of the last block
+
+    def update(self, mask: np.ndarray) -> None:
+        padded = np.concatenate(([False], mask, [False])).astype(np.int8)
+        edges = np.flatnonzero(np.diff(padded))
+        starts, stops = edges[0::2], edges[1::2]
+        lengths = stops - starts
+        if lengths.size and starts[0] == 0:
+            lengths[0] += self._open
+        else:
+            self._close(self._open)
+        self._open = 0
+        if lengths.size and stops[-1] == mask.size:
+            self._open, lengths = int(lengths[-1]), lengths[:-1]
+        for length in lengths:
+            self._close(int(length))
+
+    def finish(self) -> None:
+        self._close(self._open)
+        self._open = 0
+
+    def _close(self, length: int) -> None:
+        self.longest = max(self.longest, length)
+        if length >= self.min_length and length > 0:
+            self.runs += 1
+            self.samples += length
+
+
+class SampleStats:
+    """Accumulates peak, clipping runs, DC and silence over blocks as they stream past."""
+
+    def __init__(self, *, sample_rate_hz: int, source_name: str) -> None:
+        self._sample_rate_hz = sample_rate_hz
+        self._source_name = source_name
+        self._frames = 0
+        self._peak = 0.0
+        self._sum = 0.0
+        self._zeros = 0
+        self._clip_runs = _RunCounter(min_length=CLIP_RUN_SAMPLES)
+        self._zero_runs = _RunCounter(min_length=1)
+
+    def watch(self, blocks: Iterable[np.ndarray]) -> Iterator[np.ndarray]:
+        """Pass blocks through unchanged while accumulating the statistics."""
+        for block in blocks:
+            self.update(block)
+            yield block
+
+    def update(self, block: np.ndarray) -> None:
+        """Add one block of samples scaled to +-1."""
+        magnitude = np.abs(block)
+        self._frames += block.size
+        if block.size:
+            self._peak = max(self._peak, float(magnitude.max()))
+        self._sum += float(block.sum())
+        self._clip_runs.update(magnitude >= NEAR_FULL_SCALE)
+        zero = block == 0.0
+        self._zeros += int(zero.sum())
+        self._zero_runs.update(zero)
+
+    def facts(self) -> SignalFacts:
+        """Close open runs and return the facts with their findings."""
+        self._clip_runs.finish()
+        self._zero_runs.finish()
+        frames = max(self._frames, 1)
+        dc = self._sum / frames
+        facts = dict(
+            duration_s=self._frames / self._sample_rate_hz,
+            peak=self._peak,
+            peak_dbfs=20 * math.log10(self._peak) if self._peak > 0 else -math.inf,
+            clipped_samples=self._clip_runs.samples,
+            clip_runs=self._clip_runs.runs,
+            dc_offset=dc,
+            zero_fraction=self._zeros / frames,
+            longest_zero_run_s=self._zero_runs.longest / self._sample_rate_hz,
+        )
+        return SignalFacts(**facts, findings=self._findings(**facts))
+
+    def _findings(self, *, peak: float, clip_runs: int, clipped_samples: int, dc_offset: float,
+                  zero_fraction: float, longest_zero_run_s: float, **_: float) -> tuple[Finding, ...]:
+        name = self._source_name
+        found: list[Finding] = []
+        if peak == 0.0:
+            found.append(Finding("digital_silence", "error", f"{name}: every sample is exactly zero",
+                                 "Check the microphone cable, input selection and gain, then record again."))
+        elif longest_zero_run_s >= DROPOUT_MIN_S:
+            found.append(Finding("dropout", "warning",
+                                 f"{name}: {longest_zero_run_s * 1000:.0f} ms of exact digital silence "
+                                 f"({zero_fraction:.1%} of samples are zero)",
+                                 "Record the take again; check the recorder's buffer and connection.",
+                                 clause="common practice"))
+        if clip_runs:
+            found.append(Finding("clipping", "error",
+                                 f"{name}: {clip_runs} clipped run(s), {clipped_samples} samples at full scale",
+                                 "Lower the input gain (or the source level) and record again.",
+                                 clause="common practice"))
+        if abs(dc_offset) > DC_OFFSET_LIMIT:
+            found.append(Finding("dc_offset", "warning",
+                                 f"{name}: DC offset {dc_offset:+.3f} of full scale",
+                                 "Check the recorder input; band levels above 50 Hz are not affected.",
+                                 clause="common practice"))
+        return tuple(found)
+
+
+def _wav_missing_bytes(file: Path) -> int:
+    """Bytes the RIFF 'data' chunk declares beyond the end of the file (0 if complete or unknown).
+
+    libsndfile silently reads a truncated WAV as a shorter one, so the header is checked here.
+    """
+    with open(file, "rb") as handle:
+        head = handle.read(12)
+        if len(head) < 12 or head[:4] != b"RIFF" or head[8:12] != b"WAVE":
+            return 0
+        position = 12
+        while True:
+            handle.seek(position)
+            chunk = handle.read(8)
+            if len(chunk) < 8:
+                return 0
+            size = int.from_bytes(chunk[4:8], "little")
+            if chunk[:4] == b"data":
+                available = file.stat().st_size - (position + 8)
+                return max(size - available, 0) if size != 0xFFFFFFFF else 0
+            position += 8 + size + (size & 1)
+
+
+def _short(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return text[0] if text else type(exc).__name__
