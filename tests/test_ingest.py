@@ -57,11 +57,11 @@ def test_signal_facts_of_a_clean_tone(tmp_path):
 
 def test_clipping_runs_are_counted_across_block_edges():
     stats = SampleStats(sample_rate_hz=48_000, source_name="clip.wav")
-    samples = np.tile([0.1, -0.1], 10)
-    samples[8:13] = 1.0            # one run of 5 full-scale samples, split by the block edge at 10
-    samples[16] = -1.0             # a single full-scale sample is a legitimate peak, not a run
-    stats.update(samples[:10])
-    stats.update(samples[10:])
+    samples = np.tile([0.1, -0.1], 1000)
+    samples[998:1003] = 1.0        # one run of 5 full-scale samples, split by the block edge at 1000
+    samples[1500] = -1.0           # a single full-scale sample is a legitimate peak, not a run
+    stats.update(samples[:1000])
+    stats.update(samples[1000:])
     facts = stats.facts()
     assert (facts.clip_runs, facts.clipped_samples) == (1, 5)
     assert [f.code for f in facts.findings] == ["clipping"]
