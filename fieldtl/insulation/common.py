@@ -8,7 +8,7 @@ sheet, which says for each number whether it was verified, computed or recalled 
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Literal, NamedTuple
 
@@ -78,12 +78,17 @@ def low_frequency_level_db(default_level_db: ArrayLike, corner_levels_db: ArrayL
     """L_LF = 10 lg[(2·10^(0.1 L_corner) + 10^(0.1 L)) / 3] with L_corner the highest corner level.
 
     ISO 16283-1/-2 low-frequency procedure (facts sheet 1.3, from memory, medium-high confidence).
-    ``corner_levels_db`` has one row per corner (already background-corrected where that applies);
-    the highest corner is taken band by band. Does not check room volumes or which bands apply.
+    ``corner_levels_db`` has the corners on its first axis and the shape of ``default_level_db``
+    after it (one corner may also be given with just that shape); corners are background-corrected
+    beforehand where that applies. The highest corner is taken band by band. Does not check room
+    volumes or which bands apply.
     """
-    corners = np.atleast_2d(np.asarray(corner_levels_db, dtype=float))
+    default = np.asarray(default_level_db, dtype=float)
+    corners = np.asarray(corner_levels_db, dtype=float)
+    if corners.ndim == default.ndim:
+        corners = corners[np.newaxis]
     highest_corner_db = np.max(corners, axis=0)  # L_Corner: highest corner level per band
-    return energy_to_db((2.0 * db_to_energy(highest_corner_db) + db_to_energy(default_level_db)) / 3.0)
+    return energy_to_db((2.0 * db_to_energy(highest_corner_db) + db_to_energy(default)) / 3.0)
 
 
 def weighted_energy_mean_db(levels_db: np.ndarray, weights: Sequence[float]) -> np.ndarray:
@@ -168,8 +173,8 @@ def average_reverberation_time(decays: Sequence[BandSpectrum], nominal_hz: Seque
                                kind: ReverberationKind) -> tuple[np.ndarray, np.ndarray, int, str]:
     """T per band: the arithmetic mean over decays, or one averaged T taken as given.
 
-    ``kind="decays"``: one spectrum per decay, arithmetic mean per band (ISO 16283-1 10.x /
-    ISO 3382-2, from memory). ``kind="averaged"``: exactly one spectrum that the caller already
+    ``kind="decays"``: one spectrum per decay, arithmetic mean per band (ISO 16283-1 / ISO 3382-2,
+    from memory). ``kind="averaged"``: exactly one spectrum that the caller already
     averaged (for example T from an ensemble-averaged decay); it is used unchanged and its spread
     is unknown. Returns (mean_s, std_s, decay_count, rule text). Does not apply the 63 Hz-octave
     option of the low-frequency procedure: pass T for 50/63/80 Hz already chosen that way.
@@ -216,7 +221,7 @@ def _complete_octaves_hz(thirds_hz: tuple[float, ...]) -> tuple[float, ...]:
                  if all(f in thirds_hz for f in thirds_of_octave(o)))
 
 
-def _octaves(spectrum: BandSpectrum, combine) -> BandSpectrum:
+def _octaves(spectrum: BandSpectrum, combine: Callable[[np.ndarray], float]) -> BandSpectrum:
     if spectrum.fraction != 3:
         raise InputError(f"{spectrum.quantity}: octave values need one-third-octave input")
     octaves_hz = _complete_octaves_hz(spectrum.nominal_hz)
