@@ -290,3 +290,15 @@ def test_bands_outside_50_5000_are_dropped_and_said_so():
     assert result.nominal_hz == BANDS
     assert "40, 6300 Hz" in result.rules_applied[0]
 
+
+
+def test_reverberation_mean_skips_decays_without_a_valid_value():
+    # Arithmetic mean per band over the decays that gave a value (ISO 16283-1, from memory):
+    # 0.5 and 0.7 s -> 0.6 s, sample standard deviation 0.1414 s; a band with one decay has no spread.
+    from fieldtl.insulation.common import average_reverberation_time
+    bands = (100.0, 125.0)
+    decays = [BandSpectrum(bands, (0.5, 0.4), "s", "T"), BandSpectrum(bands, (0.7, None), "s", "T")]
+    mean_s, std_s, count, rule = average_reverberation_time(decays, bands, kind="decays")
+    assert mean_s == pytest.approx([0.6, 0.4])
+    assert std_s[0] == pytest.approx(0.141421, abs=1e-6) and np.isnan(std_s[1])
+    assert count == 2 and "remaining decays" in rule

@@ -191,8 +191,15 @@ def average_reverberation_time(decays: Sequence[BandSpectrum], nominal_hz: Seque
     if kind != "decays":
         raise InputError(f"reverberation time kind must be 'decays' or 'averaged', got {kind!r}")
     count = values_s.shape[0]
-    return (np.mean(values_s, axis=0), sample_std(values_s), count,
-            f"T per band: arithmetic mean of {count} decay(s) (ISO 16283-1/-2, from memory)")
+    valid = np.isfinite(values_s)
+    per_band = valid.sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean_s = np.where(per_band > 0, np.nansum(values_s, axis=0) / per_band, np.nan)
+        squares = np.nansum((values_s - mean_s) ** 2, axis=0)
+        std_s = np.where(per_band >= 2, np.sqrt(squares / (per_band - 1)), np.nan)
+    partial = "" if valid.all() else "; a band where a decay gave no valid T uses the remaining decays"
+    return (mean_s, std_s, count,
+            f"T per band: arithmetic mean of {count} decay(s) (ISO 16283-1/-2, from memory){partial}")
 
 
 def octave_level_difference_db(spectrum: BandSpectrum) -> BandSpectrum:
