@@ -153,6 +153,9 @@ def test_vector_1_rates_22_with_c_minus_2_and_ctr_minus_4():
     assert rating.single_number_db == 22
     assert rating.deviation_sum_db == 30.0
     assert rating.adaptation_terms_db == {"C": -2, "Ctr": -4}
+    # Unrounded Rw + C = X_A1, Rw + Ctr = X_A2 (python-acoustics tests: 19.657473, 18.036283).
+    assert rating.adapted_precise_db["C"] == pytest.approx(19.657473, abs=1e-5)
+    assert rating.adapted_precise_db["Ctr"] == pytest.approx(18.036283, abs=1e-5)
     assert rating.single_number_precise_db == 22.2    # facts sheet 12: sum 31.8 dB at 22.2
     assert rating.unfavourable_deviation.values == tuple(
         float(v) for v in (0, 0, 0, 0, 0, 0, 1, 2, 0, 2, 7, 11, 6, 1, 0, 0))
@@ -198,6 +201,7 @@ def test_impact_vector_rates_59_with_ci_minus_3():
     rating = rate_iso717_2(thirds(IMPACT_VECTOR, "L'nT"))
     assert (rating.single_number_db, rating.deviation_sum_db, rating.max_deviation_db) == (59, 28.3, 4.2)
     assert rating.adaptation_terms_db == {"CI": -3}
+    assert rating.adapted_precise_db["CI"] == pytest.approx(70.89 - 15, abs=0.005)  # unrounded L'nT,w + CI
     assert rating.descriptor == "L'nT,w"
     assert rating.standard == "ISO 717-2"
     # 0.1 dB evaluation (ISO 717-2:2020): 31.7 dB at 58.7, 32.9 dB at 58.6 -> 58.7 (computed).

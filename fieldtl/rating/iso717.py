@@ -55,6 +55,9 @@ class Rating:
     band_range_hz: tuple[float, float]       # lowest and highest nominal band rated
     bound: Bound | None
     adaptation_term_bounds: dict[str, Bound | None] = field(hash=False)
+    # Unrounded single number + term, i.e. X_Aj (ISO 717-1) or Ln,sum - 15 (ISO 717-2): the value
+    # to propagate uncertainty through, since rounding the term would dominate a 0.1 dB analysis.
+    adapted_precise_db: dict[str, float] = field(hash=False, default_factory=dict)
 
 
 def _reference(bands_hz: tuple[float, ...], values_db: Sequence[int], name: str,
@@ -247,7 +250,8 @@ def _fit_iso(measured_tenths: np.ndarray, reference: BandSpectrum, unfavourable:
 
 
 def _assemble(reference: BandSpectrum, fit: _Fit, *, descriptor: str, standard: str, terms_db: dict[str, int],
-              term_bounds: dict[str, Bound | None], bound: Bound | None) -> Rating:
+              term_bounds: dict[str, Bound | None], bound: Bound | None,
+              adapted_precise_db: dict[str, float]) -> Rating:
     shifted, deviation = curve_spectra(reference.nominal_hz, fit.shifted_tenths, fit.deviation_tenths,
                                        fraction=reference.fraction, descriptor=descriptor)
     return Rating(
@@ -256,7 +260,7 @@ def _assemble(reference: BandSpectrum, fit: _Fit, *, descriptor: str, standard: 
         unfavourable_deviation=deviation, deviation_sum_db=int(fit.deviation_tenths.sum()) / 10,
         max_deviation_db=int(fit.deviation_tenths.max()) / 10,
         band_range_hz=(reference.nominal_hz[0], reference.nominal_hz[-1]), bound=bound,
-        adaptation_term_bounds=term_bounds)
+        adaptation_term_bounds=term_bounds, adapted_precise_db=adapted_precise_db)
 
 
 def rate_iso717_1(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = None,
@@ -282,6 +286,7 @@ def rate_iso717_1(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = No
     limited_hz = limited_bands(spectrum, limited)
     terms_db: dict[str, int] = {}
     term_bounds: dict[str, Bound | None] = {}
+    adapted_db: dict[str, float] = {}
     for name, spectrum_db in (AIRBORNE_SPECTRA_THIRDS if fraction == 3 else AIRBORNE_SPECTRA_OCTAVES).items():
         if not has_levels(spectrum, spectrum_db.nominal_hz):
             continue
@@ -289,10 +294,11 @@ def rate_iso717_1(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = No
         # X_Aj = -10 lg sum 10^((L_ij - X_i)/10); C_j = X_Aj - X_w, as an integer (ISO 717-1 4.5; facts sheet 4.3)
         x_a_db = -10.0 * math.log10(float(np.sum(10.0 ** ((spectrum_db.as_array() - band_tenths / 10) / 10))))
         terms_db[name] = round_half_up(x_a_db - fit.single_number_db)
+        adapted_db[name] = x_a_db
         term_bounds[name] = bound_of(spectrum_db.nominal_hz, limited_hz, "lower")
     return _assemble(reference, fit, descriptor=descriptor, standard=standard, terms_db=terms_db,
                      term_bounds=term_bounds,
-                     bound=bound_of(reference.nominal_hz, limited_hz, "lower"))
+                     bound=bound_of(reference.nominal_hz, limited_hz, "lower"), adapted_precise_db=adapted_db)
 
 
 def rate_iso717_2(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = None,
@@ -317,6 +323,7 @@ def rate_iso717_2(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = No
     limited_hz = limited_bands(spectrum, limited)
     terms_db: dict[str, int] = {}
     term_bounds: dict[str, Bound | None] = {}
+    adapted_db: dict[str, float] = {}
     for name, (low_hz, high_hz) in _IMPACT_TERM_RANGES_HZ[fraction].items():
         bands_hz = nominal_bands_hz(low_hz, high_hz, fraction=fraction)
         if not has_levels(spectrum, bands_hz):
@@ -325,7 +332,8 @@ def rate_iso717_2(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = No
         # Ln,sum = 10 lg sum 10^(Li/10); CI = Ln,sum - 15 - Ln,w, as an integer (ISO 717-2 Annex A, from memory)
         sum_db = 10.0 * math.log10(float(np.sum(10.0 ** (band_tenths / 100))))
         terms_db[name] = round_half_up(sum_db - _IMPACT_SUM_OFFSET_DB - fit.single_number_db)
+        adapted_db[name] = sum_db - _IMPACT_SUM_OFFSET_DB
         term_bounds[name] = bound_of(bands_hz, limited_hz, "upper")
     return _assemble(reference, fit, descriptor=descriptor, standard=standard, terms_db=terms_db,
                      term_bounds=term_bounds,
-                     bound=bound_of(reference.nominal_hz, limited_hz, "upper"))
+                     bound=bound_of(reference.nominal_hz, limited_hz, "upper"), adapted_precise_db=adapted_db)
