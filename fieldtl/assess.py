@@ -1,0 +1,268 @@
+"""From measured takes to the deliverable: field quantities, ratings, uncertainty, verdict, findings.
+
+:func:`assess` is pure: it takes what was measured (one :class:`~fieldtl.qa.TakeSummary` per
+recording or pasted column) and the survey's geometry and requirement, and returns one frozen
+:class:`Assessment`. Measuring audio into takes is :mod:`fieldtl.measure`'s job.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from typing import Literal
+
+from fieldtl.bands import BandSpectrum
+from fieldtl.errors import InputError
+from fieldtl.findings import Finding
+from fieldtl.insulation import (AirborneMeasurement, AirborneResult, ImpactMeasurement, ImpactResult,
+                                LoudspeakerPosition, Rooms, TappingPosition, airborne_insulation,
+                                impact_insulation)
+from fieldtl.insulation.astm_field import apparent_transmission_loss_db, normalized_impact_level_db
+from fieldtl.qa import (TakeSummary, check_against_lab_rating, check_astm_scope, check_background,
+                        check_calibration, check_decays, check_durations, check_geometry, check_positions,
+                        check_source_spectrum, check_spatial_spread, check_stationarity)
+from fieldtl.rating import Rating, rate_e413, rate_e989, rate_iso717_1, rate_iso717_2
+from fieldtl.survey import Survey
+from fieldtl.uncertainty import (CombinedUncertainty, Verdict, band_standard_error_db, decide,
+                                 parse_requirement, propagate_to_single_number, table_uncertainty)
+
+CAUTIONS: tuple[str, ...] = (
+    "Test loudspeakers and tapping machines reach levels that damage hearing: wear hearing protection, "
+    "keep other people out of the rooms and raise levels gradually.",
+    "Results are indicative unless produced under an accredited procedure; local building codes and "
+    "licensed practice decide whether a construction complies.",
+)
+
+SourceCombination = Literal["energy", "arithmetic", "simultaneous"]
+AreaRule = Literal["smaller", "receiving", "source", "off"]
+DecisionRule = Literal["guarded", "shared_risk"]
+
+
+@dataclass(frozen=True, slots=True)
+class AssessOptions:
+    """Choices the standards leave to the user, with the defaults we ship."""
+
+    source_combination: SourceCombination = "energy"   # ISO 16283-1 loudspeaker positions (from memory)
+    area_rule: AreaRule = "smaller"                    # S = max(S, V/7.5), V of the smaller room (from memory)
+    decision_rule: DecisionRule = "guarded"
+    coverage_factor: float | None = None               # None: 1.65 guarded, 1.96 shared risk
+    declared_lab_rating_db: float | None = None        # the element's lab Rw, for a plausibility check
+
+
+@dataclass(frozen=True, slots=True)
+class Assessment:
+    """Everything one test produced, ready for text, JSON, CSV, plots and the report."""
+
+    title: str
+    test_type: str
+    source_name: str
+    calibrated: bool
+    result: AirborneResult | ImpactResult
+    ratings: tuple[Rating, ...]
+    rated_spectra: tuple[BandSpectrum, ...]      # the spectrum each rating was computed from, same order
+    verdict: Verdict | None
+    uncertainty: CombinedUncertainty | None
+    findings: tuple[Finding, ...]
+    takes: tuple[TakeSummary, ...]
+    rules_applied: tuple[str, ...]
+    cautions: tuple[str, ...] = CAUTIONS
+    table_uncertainty_db: dict[str, float] = field(default_factory=dict, hash=False)
+    uncertainty_note: str = ""
+
+    def rating(self, descriptor: str) -> Rating | None:
+        """The rating with this descriptor ("DnT,w", "NNIC" ...), or None if it was not computed."""
+        return next((r for r in self.ratings if r.descriptor == descriptor), None)
+
+
+def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
+           findings: Sequence[Finding] = (), options: AssessOptions = AssessOptions()) -> Assessment:
+    """Compute the field result of one test from its measured takes.
+
+    Quality problems (too few positions, background limits, a rating that cannot be formed) become
+    findings; only unusable input (e.g. no receiving-room level at all) raises InputError.
+    """
+    geometry = survey.geometry
+    found: list[Finding] = list(findings)
+    found += check_calibration(calibrated=calibrated, test_type=survey.test_type)
+    found += check_geometry(receiving_volume_m3=geometry.receiving_volume_m3,
+                            source_volume_m3=geometry.source_volume_m3,
+                            separating_area_m2=geometry.separating_area_m2)
+    found += check_positions(takes, test_type=survey.test_type)
+    found += check_durations(takes)
+    found += check_stationarity(takes)
+    found += check_spatial_spread(takes)
+    found += check_decays(takes)
+    decays = tuple(t.reverberation_time_s for t in takes if t.role == "decay" and t.reverberation_time_s is not None)
+    if not decays:
+        raise InputError(f"{survey.source_name}: no decay gave a reverberation time")
+    backgrounds = _levels(takes, "background")
+    if survey.test_type == "airborne":
+        result = _airborne(survey, takes, backgrounds, decays, options)
+        found += check_source_spectrum([t.level_db for t in takes if t.role == "source" and t.level_db],
+                                       labels=[t.label for t in takes if t.role == "source" and t.level_db])
+        rated, rating_findings = _airborne_ratings(result, survey)
+    else:
+        result = _impact(survey, takes, backgrounds, decays)
+        rated, rating_findings = _impact_ratings(result, survey)
+    ratings = tuple(r.rating for r in rated)
+    found += result.findings
+    found += check_background(result.background_margin_db, result.limited, test_type=survey.test_type)
+    found += rating_findings
+    field_r = next((r.single_number_db for r in ratings if r.descriptor == "R'w"), None)
+    found += check_against_lab_rating(field_rating_db=field_r, lab_rating_db=options.declared_lab_rating_db)
+    table_u = {r.descriptor: table_uncertainty(r.descriptor, situation=survey.uncertainty_situation)
+               for r in ratings}
+    verdict, combined, verdict_findings = _verdict(survey, result, rated, options)
+    found += verdict_findings
+    note = next(iter(table_u.values())).source if table_u else ""
+    return Assessment(title=survey.title, test_type=survey.test_type, source_name=survey.source_name,
+                      calibrated=calibrated, result=result, ratings=ratings,
+                      rated_spectra=tuple(r.spectrum for r in rated), verdict=verdict,
+                      uncertainty=combined, findings=tuple(found), takes=tuple(takes),
+                      rules_applied=result.rules_applied,
+                      table_uncertainty_db={d: u.standard_uncertainty_db for d, u in table_u.items()},
+                      uncertainty_note=note)
+
+
+def _levels(takes: Sequence[TakeSummary], role: str, speaker: int | None = None) -> tuple[BandSpectrum, ...]:
+    return tuple(t.level_db for t in takes
+                 if t.role == role and t.level_db is not None and (speaker is None or t.speaker == speaker))
+
+
+def _speakers(takes: Sequence[TakeSummary], role: str) -> list[int]:
+    return sorted({t.speaker for t in takes if t.role == role and t.level_db is not None})
+
+
+def _airborne(survey: Survey, takes: Sequence[TakeSummary], backgrounds: tuple[BandSpectrum, ...],
+              decays: tuple[BandSpectrum, ...], options: AssessOptions) -> AirborneResult:
+    speakers = _speakers(takes, "receiving")
+    missing = [s for s in speakers if not _levels(takes, "source", s)]
+    if missing:
+        raise InputError(f"{survey.source_name}: loudspeaker position {missing[0]} has receiving-room "
+                         "recordings but no source-room recording")
+    positions = tuple(LoudspeakerPosition(source_levels_db=_levels(takes, "source", s),
+                                          receiving_levels_db=_levels(takes, "receiving", s),
+                                          source_corner_levels_db=_levels(takes, "source_corner", s),
+                                          receiving_corner_levels_db=_levels(takes, "receiving_corner", s))
+                      for s in speakers)
+    geometry = survey.geometry
+    measurement = AirborneMeasurement(positions=positions, background_levels_db=backgrounds,
+                                      reverberation_times_s=decays)
+    rooms = Rooms(source_volume_m3=geometry.source_volume_m3 or geometry.receiving_volume_m3,
+                  receiving_volume_m3=geometry.receiving_volume_m3, common_area_m2=geometry.separating_area_m2)
+    return airborne_insulation(measurement, rooms, source_combination=options.source_combination,
+                               area_rule=options.area_rule)
+
+
+def _impact(survey: Survey, takes: Sequence[TakeSummary], backgrounds: tuple[BandSpectrum, ...],
+            decays: tuple[BandSpectrum, ...]) -> ImpactResult:
+    positions = tuple(TappingPosition(receiving_levels_db=_levels(takes, "impact", s),
+                                      receiving_corner_levels_db=_levels(takes, "receiving_corner", s))
+                      for s in _speakers(takes, "impact"))
+    measurement = ImpactMeasurement(positions=positions, background_levels_db=backgrounds,
+                                    reverberation_times_s=decays)
+    return impact_insulation(measurement, receiving_volume_m3=survey.geometry.receiving_volume_m3)
+
+
+def _renamed(spectrum: BandSpectrum, quantity: str) -> BandSpectrum:
+    return BandSpectrum(spectrum.nominal_hz, spectrum.values, spectrum.unit, quantity, spectrum.fraction)
+
+
+@dataclass(frozen=True, slots=True)
+class RatedSpectrum:
+    """A rating and the band spectrum it was computed from."""
+
+    rating: Rating
+    spectrum: BandSpectrum
+
+
+_RATERS: dict[str, Callable[..., Rating]] = {
+    "ISO 717-1": rate_iso717_1, "ISO 717-2": rate_iso717_2, "ASTM E413": rate_e413, "ASTM E989": rate_e989,
+}
+
+
+def _try_rating(rate: Callable[..., Rating], spectrum: BandSpectrum, limited: tuple[bool, ...],
+                descriptor: str) -> tuple[RatedSpectrum | None, tuple[Finding, ...]]:
+    try:
+        return RatedSpectrum(rate(spectrum, limited=limited, descriptor=descriptor), spectrum), ()
+    except InputError as exc:
+        return None, (Finding("rating_not_possible", "warning", f"{descriptor} not computed: {exc}",
+                              "Measure the missing bands (levels and decays) and re-run."),)
+
+
+def _collect(pairs: Sequence[tuple[RatedSpectrum | None, tuple[Finding, ...]]]
+             ) -> tuple[tuple[RatedSpectrum, ...], tuple[Finding, ...]]:
+    rated = tuple(r for r, _ in pairs if r is not None)
+    return rated, tuple(f for _, fs in pairs for f in fs)
+
+
+def _airborne_ratings(result: AirborneResult, survey: Survey) -> tuple[tuple[RatedSpectrum, ...], tuple[Finding, ...]]:
+    limited = result.limited
+    pairs = []
+    if result.apparent_sound_reduction_index_db is not None:
+        pairs.append(_try_rating(rate_iso717_1, result.apparent_sound_reduction_index_db, limited, "R'w"))
+    pairs.append(_try_rating(rate_iso717_1, result.standardized_level_difference_db, limited, "DnT,w"))
+    pairs.append(_try_rating(rate_iso717_1, result.normalized_level_difference_db, limited, "Dn,w"))
+    # ASTM E336 with E413: NR is the ISO D, NNR the ISO DnT (T0 = 0.5 s); ATL uses ASTM's absorption.
+    pairs.append(_try_rating(rate_e413, _renamed(result.level_difference_db, "NR"), limited, "NIC"))
+    pairs.append(_try_rating(rate_e413, _renamed(result.standardized_level_difference_db, "NNR"), limited, "NNIC"))
+    scope = check_astm_scope(receiving_volume_m3=survey.geometry.receiving_volume_m3,
+                             source_volume_m3=survey.geometry.source_volume_m3)
+    if result.separating_area_m2 is not None and not scope:
+        atl = apparent_transmission_loss_db(result.level_difference_db, result.reverberation_time_s,
+                                            area_m2=result.separating_area_m2,
+                                            receiving_volume_m3=survey.geometry.receiving_volume_m3)
+        pairs.append(_try_rating(rate_e413, atl, limited, "ASTC"))
+    ratings, findings = _collect(pairs)
+    return ratings, findings + scope
+
+
+def _impact_ratings(result: ImpactResult, survey: Survey) -> tuple[tuple[RatedSpectrum, ...], tuple[Finding, ...]]:
+    limited = result.limited
+    anispl = normalized_impact_level_db(_renamed(result.impact_level_db, "ISPL"), result.reverberation_time_s,
+                                        receiving_volume_m3=survey.geometry.receiving_volume_m3)
+    return _collect([
+        _try_rating(rate_iso717_2, result.standardized_impact_level_db, limited, "L'nT,w"),
+        _try_rating(rate_iso717_2, result.normalized_impact_level_db, limited, "L'n,w"),
+        # ASTM E1007 with E989 (names from memory): AIIC from ANISPL, NISR from NISPL (= L'nT), ISR from ISPL.
+        _try_rating(rate_e989, anispl, limited, "AIIC"),
+        _try_rating(rate_e989, _renamed(result.standardized_impact_level_db, "NISPL"), limited, "NISR"),
+    ])
+
+
+def _verdict(survey: Survey, result: AirborneResult | ImpactResult, rated: tuple[RatedSpectrum, ...],
+             options: AssessOptions) -> tuple[Verdict | None, CombinedUncertainty | None, tuple[Finding, ...]]:
+    if not survey.requirement:
+        return None, None, ()
+    requirement = parse_requirement(survey.requirement)
+    match = next((r for r in rated if r.rating.descriptor == requirement.descriptor), None)
+    term = requirement.adaptation_term
+    if match is None or (term is not None and term not in match.rating.adaptation_terms_db):
+        return None, None, (Finding("verdict_not_possible", "error",
+                                    f"{requirement.quantity} could not be computed from this test, so there is "
+                                    f"no verdict on '{requirement}'",
+                                    "Check the requirement matches the test type, and measure the bands the "
+                                    "rating needs."),)
+    rating, spectrum = match.rating, match.spectrum
+    rate = _RATERS[rating.standard]
+
+    def precise(values: BandSpectrum) -> float:
+        fitted = rate(values, descriptor=rating.descriptor)
+        if term is not None:
+            return fitted.adapted_precise_db[term]
+        return fitted.single_number_precise_db if fitted.single_number_precise_db is not None \
+            else float(fitted.single_number_db)
+
+    include_t = requirement.descriptor not in ("NIC", "ISR")  # only these carry no T term
+    errors = band_standard_error_db(result, include_reverberation=include_t).select(spectrum.nominal_hz)
+    measurement_u = propagate_to_single_number(precise, spectrum, errors, draws=1000)
+    combined = CombinedUncertainty(table_uncertainty(rating.descriptor, situation=survey.uncertainty_situation),
+                                   measurement_u)
+    if options.decision_rule == "guarded":
+        value_db = precise(spectrum)
+    else:
+        value_db = float(rating.single_number_db + (rating.adaptation_terms_db[term] if term else 0))
+    bound = (rating.adaptation_term_bounds.get(term) if term else rating.bound) or "exact"
+    verdict = decide(requirement, value_db, combined, rule=options.decision_rule,
+                     coverage_factor=options.coverage_factor, bound=bound)
+    return verdict, combined, ()

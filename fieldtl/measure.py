@@ -1,0 +1,134 @@
+"""Measuring every take of a survey: recordings (or pasted columns) → TakeSummary values.
+
+Each recording is read once, block by block: the same blocks feed the signal-facts watcher
+(clipping, silence, DC) and the band-level analysis. Decays are analysed whole (they are short).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from fieldtl.analysis.decay import DecayAnalysis, reverberation_from_impulse_response, reverberation_from_sweep
+from fieldtl.analysis.interrupted import reverberation_from_interrupted_noise
+from fieldtl.analysis.levels import LevelAnalysis, analyse_levels
+from fieldtl.audio.calibration import Calibration, calibration_drift, calibration_from_tone
+from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording, read_samples
+from fieldtl.audio.signals import SweepSpec
+from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ
+from fieldtl.errors import InputError
+from fieldtl.findings import Finding
+from fieldtl.qa import TakeSummary
+from fieldtl.survey import BandColumn, CalibrationSpec, Survey, TakeSpec
+
+FIELD_RANGE_HZ = (50.0, 5000.0)                 # ISO 16283-1/-2 bands with the optional extensions
+Progress = Callable[[str, float], None]         # (take name, fraction of that take done)
+
+
+@dataclass(frozen=True, slots=True)
+class MeasuredSurvey:
+    """Every take measured, with the calibration used and what the recordings showed."""
+
+    takes: tuple[TakeSummary, ...]
+    calibration: Calibration | None
+    calibration_after: Calibration | None
+    findings: tuple[Finding, ...]
+
+    @property
+    def calibrated(self) -> bool:
+        return self.calibration is not None
+
+
+def measure_survey(survey: Survey, *, progress: Progress | None = None) -> MeasuredSurvey:
+    """Measure the survey's recordings, or take its pasted band levels as they are."""
+    if survey.band_columns:
+        return MeasuredSurvey(takes_from_band_columns(survey.band_columns), None, None, ())
+    calibration = _calibrate(survey.calibration) if survey.calibration else None
+    after = _calibrate(survey.calibration, after=True) if survey.calibration and survey.calibration.file_after else None
+    findings: list[Finding] = []
+    for cal in (calibration, after):
+        if cal is not None:
+            findings += cal.findings
+    if calibration is not None and after is not None:
+        findings += calibration_drift(calibration, after)[1]
+    offset_db = 0.0 if calibration is None else calibration.offset_db
+    takes = []
+    for spec in survey.takes:
+        take, take_findings = measure_take(spec, level_offset_db=offset_db, progress=progress)
+        takes.append(take)
+        findings += take_findings
+    return MeasuredSurvey(tuple(takes), calibration, after, tuple(findings))
+
+
+def measure_take(spec: TakeSpec, *, level_offset_db: float,
+                 progress: Progress | None = None) -> tuple[TakeSummary, tuple[Finding, ...]]:
+    """Band levels (level roles) or reverberation times (decays) of one recording."""
+    recording = open_recording(spec.file, channel=spec.channel)
+    name = recording.name
+    stats = SampleStats(sample_rate_hz=recording.sample_rate_hz, source_name=name)
+    if spec.role == "decay":
+        samples = np.concatenate(list(stats.watch(iter_blocks(recording))))
+        analysis = analyse_decay(samples, sample_rate_hz=recording.sample_rate_hz, spec=spec, source_name=name)
+        facts = stats.facts()
+        take = TakeSummary(label=name, role=spec.role, speaker=spec.speaker, duration_s=facts.duration_s,
+                           reverberation_time_s=analysis.spectrum("T20"))
+        return take, facts.findings + analysis.all_findings()
+    levels = analyse_levels(stats.watch(iter_blocks(recording)), sample_rate_hz=recording.sample_rate_hz,
+                            level_offset_db=level_offset_db, band_range_hz=FIELD_RANGE_HZ,
+                            total_frames=recording.frames, source_name=name,
+                            progress=None if progress is None else (lambda done: progress(name, done)))
+    facts = stats.facts()
+    history_std_db, event_db = _history_statistics(levels)
+    take = TakeSummary(label=name, role=spec.role, speaker=spec.speaker, duration_s=facts.duration_s,
+                       level_db=levels.band_leq, level_history_std_db=history_std_db,
+                       background_event_db=event_db)
+    return take, facts.findings
+
+
+def analyse_decay(samples: np.ndarray, *, sample_rate_hz: float, spec: TakeSpec, source_name: str) -> DecayAnalysis:
+    """T20/T30/EDT per band 50-5000 Hz by the take's method."""
+    bands = THIRD_OCTAVES_50_5000_HZ
+    if spec.method == "impulse":
+        return reverberation_from_impulse_response(samples, sample_rate_hz=sample_rate_hz, nominal_hz=bands,
+                                                   source_name=source_name)
+    if spec.method == "interrupted":
+        return reverberation_from_interrupted_noise(samples, sample_rate_hz=sample_rate_hz, nominal_hz=bands,
+                                                    source_name=source_name)
+    sweep = sweep_from_spec(spec, sample_rate_hz=sample_rate_hz, source_name=source_name)
+    return reverberation_from_sweep(samples, sweep, sample_rate_hz=sample_rate_hz, nominal_hz=bands,
+                                    source_name=source_name)
+
+
+def sweep_from_spec(spec: TakeSpec, *, sample_rate_hz: float, source_name: str) -> SweepSpec:
+    """The sweep that was played, from the survey's sweep_* keys (all three are needed)."""
+    if spec.sweep_length_s is None or spec.sweep_start_hz is None or spec.sweep_stop_hz is None:
+        raise InputError(f"{source_name}: a sweep decay needs sweep_start_hz, sweep_stop_hz and sweep_length_s "
+                         "(the sweep that was played)")
+    return SweepSpec(duration_s=spec.sweep_length_s, sample_rate_hz=sample_rate_hz, low_hz=spec.sweep_start_hz,
+                     high_hz=spec.sweep_stop_hz)
+
+
+def takes_from_band_columns(columns: Sequence[BandColumn]) -> tuple[TakeSummary, ...]:
+    """Pasted sound-level-meter columns as takes (no audio facts, no time history)."""
+    return tuple(TakeSummary(label=c.label, role=c.role, speaker=c.speaker,
+                             level_db=None if c.role == "decay" else c.spectrum,
+                             reverberation_time_s=c.spectrum if c.role == "decay" else None)
+                 for c in columns)
+
+
+def _calibrate(spec: CalibrationSpec, *, after: bool = False) -> Calibration:
+    file = spec.file_after if after else spec.file
+    recording = open_recording(file, channel=spec.channel)
+    return calibration_from_tone(read_samples(recording), sample_rate_hz=recording.sample_rate_hz,
+                                 source_name=recording.name, reference_db=spec.reference_db)
+
+
+def _history_statistics(levels: LevelAnalysis) -> tuple[float | None, float | None]:
+    """Scatter of whole 1 s A-weighted levels, and the loudest one above the median."""
+    laeq_db = levels.history.laeq_db[1:-1]          # first: settling filters; last: a partial second
+    laeq_db = laeq_db[np.isfinite(laeq_db)]
+    if laeq_db.size < 3:
+        return None, None
+    return float(np.std(laeq_db, ddof=1)), float(np.max(laeq_db) - np.median(laeq_db))

@@ -1,0 +1,1 @@
+"""Turning an Assessment into text, JSON, CSV, a chart and a PDF report (no computation here)."""

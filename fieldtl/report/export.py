@@ -1,0 +1,135 @@
+"""Assessment → the JSON schema of `fieldtl assess`, a CSV band table and a readable text report.
+
+Band values are rounded to 0.1 dB, T to 0.01 s; ``null`` where a band has no value. Keys that do
+not apply to the test type are absent.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from typing import Any
+
+from fieldtl.assess import Assessment
+from fieldtl.bands import BandSpectrum
+from fieldtl.insulation import AirborneResult
+from fieldtl.rating import Rating
+
+_ISO_TERM_KEYS = {"Ctr,50-3150": "Ctr50-3150", "Ctr,50-5000": "Ctr50-5000", "Ctr,100-5000": "Ctr100-5000",
+                  "CI,50-2500": "CI50-2500"}
+
+
+def band_columns(assessment: Assessment) -> dict[str, BandSpectrum]:
+    """The per-band quantities of the test, keyed by their JSON names, in display order."""
+    result = assessment.result
+    if isinstance(result, AirborneResult):
+        columns = {"L1": result.source_level_db, "L2": result.receiving_level_db, "B": result.background_level_db,
+                   "T": result.reverberation_time_s, "D": result.level_difference_db,
+                   "Dn": result.normalized_level_difference_db, "DnT": result.standardized_level_difference_db}
+        if result.apparent_sound_reduction_index_db is not None:
+            columns["R_prime"] = result.apparent_sound_reduction_index_db
+        return columns
+    return {"Li": result.impact_level_db, "B": result.background_level_db, "T": result.reverberation_time_s,
+            "L_prime_n": result.normalized_impact_level_db, "L_prime_nT": result.standardized_impact_level_db}
+
+
+def _rounded(spectrum: BandSpectrum) -> list[float | None]:
+    return list(spectrum.rounded(2 if spectrum.unit == "s" else 1))
+
+
+def _rating_json(rating: Rating, u_db: float | None) -> Any:
+    if rating.standard.startswith("ASTM"):
+        return rating.single_number_db
+    entry: dict[str, Any] = {"value": rating.single_number_db}
+    entry.update({_ISO_TERM_KEYS.get(k, k): v for k, v in rating.adaptation_terms_db.items()})
+    entry["value_0.1dB"] = rating.single_number_precise_db
+    entry["bound"] = rating.bound
+    entry["standard_uncertainty_db"] = u_db
+    return entry
+
+
+def assessment_to_json(assessment: Assessment) -> dict[str, Any]:
+    """The JSON document written by ``fieldtl assess --json``."""
+    columns = band_columns(assessment)
+    verdict = assessment.verdict
+    return {
+        "title": assessment.title,
+        "test_type": assessment.test_type,
+        "calibrated": assessment.calibrated,
+        "frequencies_hz": [_number(f) for f in assessment.result.nominal_hz],
+        "bands": {name: _rounded(spectrum) for name, spectrum in columns.items()},
+        "limited": list(assessment.result.limited),
+        "ratings": {r.descriptor: _rating_json(r, assessment.table_uncertainty_db.get(r.descriptor))
+                    for r in assessment.ratings},
+        "verdict": None if verdict is None else {
+            "requirement": str(verdict.requirement),
+            "value": round(verdict.value_db, 1),
+            "bound": verdict.bound,
+            "expanded_uncertainty_db": round(verdict.expanded_uncertainty_db, 1),
+            "coverage_factor": verdict.coverage_factor,
+            "result": verdict.outcome,
+            "rule": verdict.statement,
+        },
+        "uncertainty_note": assessment.uncertainty_note,
+        "rules_applied": list(assessment.rules_applied),
+        "warnings": [f.as_json() for f in assessment.findings],
+        "cautions": list(assessment.cautions),
+    }
+
+
+def assessment_to_csv(assessment: Assessment) -> str:
+    """One row per band: frequency, every band quantity, and whether the band is a limit."""
+    columns = band_columns(assessment)
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(["frequency_hz", *columns, "limited"])
+    rows = zip(assessment.result.nominal_hz, *(_rounded(s) for s in columns.values()), assessment.result.limited)
+    for frequency_hz, *values, limited in rows:
+        writer.writerow([_number(frequency_hz), *("" if v is None else v for v in values), "yes" if limited else ""])
+    return out.getvalue()
+
+
+def assessment_to_text(assessment: Assessment) -> str:
+    """A plain-text report for the terminal: band table, single numbers, verdict, findings, cautions."""
+    columns = band_columns(assessment)
+    limited = assessment.result.limited
+    bound_mark = "≤" if assessment.test_type == "impact" else "≥"
+    lines = [assessment.title, f"{assessment.test_type} test; levels "
+             f"{'calibrated (dB re 20 µPa)' if assessment.calibrated else 'in dB re full scale (no calibration)'}", ""]
+    header = f"{'Hz':>6} " + " ".join(f"{name.replace('_prime', chr(39)):>8}" for name in columns)
+    lines += [header, "-" * len(header)]
+    for i, frequency_hz in enumerate(assessment.result.nominal_hz):
+        cells = []
+        for name, spectrum in columns.items():
+            value = spectrum.values[i]
+            text = "-" if value is None else (f"{value:.2f}" if spectrum.unit == "s" else f"{value:.1f}")
+            if limited[i] and name not in ("L1", "B", "T"):
+                text = bound_mark + text
+            cells.append(f"{text:>8}")
+        lines.append(f"{_number(frequency_hz):>6} " + " ".join(cells))
+    lines.append(f"{bound_mark} marks a band limited by background noise (value is a bound).")
+    lines += ["", "Single numbers"]
+    for rating in assessment.ratings:
+        terms = ", ".join(f"{k} {v:+d}" for k, v in rating.adaptation_terms_db.items())
+        bound = {"lower": " (lower bound)", "upper": " (upper bound)"}.get(rating.bound or "", "")
+        precise = "" if rating.single_number_precise_db is None else f" [{rating.single_number_precise_db:.1f}]"
+        lines.append(f"  {rating.descriptor:<7} {rating.single_number_db:>3} dB{precise}{bound}"
+                     + (f"   ({terms})" if terms else ""))
+    if assessment.uncertainty_note:
+        lines.append(f"  Table uncertainty: {assessment.uncertainty_note}")
+    if assessment.verdict is not None:
+        verdict = assessment.verdict
+        lines += ["", f"Verdict: {verdict.outcome.upper()} against '{verdict.requirement}'", f"  {verdict.statement}"]
+    if assessment.findings:
+        lines += ["", "Quality findings"]
+        for finding in assessment.findings:
+            band = "" if finding.band_hz is None else f" [{_number(finding.band_hz)} Hz]"
+            lines.append(f"  {finding.severity.upper():<7} {finding.code}{band}: {finding.message}")
+            if finding.action:
+                lines.append(f"          → {finding.action}")
+    lines += ["", *(f"Caution: {c}" for c in assessment.cautions)]
+    return "\n".join(lines)
+
+
+def _number(value: float) -> float | int:
+    return int(value) if float(value).is_integer() else float(value)
