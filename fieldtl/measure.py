@@ -17,7 +17,7 @@ from fieldtl.analysis.levels import LevelAnalysis, analyse_levels
 from fieldtl.audio.calibration import Calibration, calibration_drift, calibration_from_tone
 from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording, read_samples
 from fieldtl.audio.signals import SweepSpec
-from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ
+from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, Fraction
 from fieldtl.errors import InputError
 from fieldtl.findings import Finding
 from fieldtl.qa import TakeSummary
@@ -87,18 +87,17 @@ def measure_take(spec: TakeSpec, *, level_offset_db: float,
     return take, facts.findings
 
 
-def analyse_decay(samples: np.ndarray, *, sample_rate_hz: float, spec: TakeSpec, source_name: str) -> DecayAnalysis:
-    """T20/T30/EDT per band 50-5000 Hz by the take's method."""
-    bands = THIRD_OCTAVES_50_5000_HZ
+def analyse_decay(samples: np.ndarray, *, sample_rate_hz: float, spec: TakeSpec, source_name: str,
+                  nominal_hz: Sequence[float] | None = THIRD_OCTAVES_50_5000_HZ,
+                  fraction: Fraction = 3) -> DecayAnalysis:
+    """T20/T30/EDT per band (default one-third octaves 50-5000 Hz) by the take's method."""
+    options = dict(sample_rate_hz=sample_rate_hz, nominal_hz=nominal_hz, fraction=fraction, source_name=source_name)
     if spec.method == "impulse":
-        return reverberation_from_impulse_response(samples, sample_rate_hz=sample_rate_hz, nominal_hz=bands,
-                                                   source_name=source_name)
+        return reverberation_from_impulse_response(samples, **options)
     if spec.method == "interrupted":
-        return reverberation_from_interrupted_noise(samples, sample_rate_hz=sample_rate_hz, nominal_hz=bands,
-                                                    source_name=source_name)
-    sweep = sweep_from_spec(spec, sample_rate_hz=sample_rate_hz, source_name=source_name)
-    return reverberation_from_sweep(samples, sweep, sample_rate_hz=sample_rate_hz, nominal_hz=bands,
-                                    source_name=source_name)
+        return reverberation_from_interrupted_noise(samples, **options)
+    return reverberation_from_sweep(samples, sweep_from_spec(spec, sample_rate_hz=sample_rate_hz,
+                                                             source_name=source_name), **options)
 
 
 def sweep_from_spec(spec: TakeSpec, *, sample_rate_hz: float, source_name: str) -> SweepSpec:

@@ -1,0 +1,310 @@
+"""The `fieldtl` command: a thin client of the core; every subcommand calls the same functions as the app.
+
+Bad input never produces a traceback: any FieldTLError (or an unreadable/unwritable path) is
+printed as one line `fieldtl: <file>: <problem>` on stderr with exit status 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import sys
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any
+
+from fieldtl import __version__
+from fieldtl.errors import FieldTLError, InputError
+
+EXIT_BAD_INPUT = 2
+PROGRESS_MIN_S = 20.0   # show a progress bar for recordings at least this long, in a terminal
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = _parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.run(args) or 0)
+    except FieldTLError as exc:
+        print(f"fieldtl: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except BrokenPipeError:              # output piped into `head` and closed: not an error of ours
+        sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - silence the flush at interpreter exit
+        return 0
+    except OSError as exc:
+        name = Path(exc.filename).name if getattr(exc, "filename", None) else "file"
+        print(f"fieldtl: {name}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("fieldtl: interrupted", file=sys.stderr)
+        return 130
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(prog="fieldtl", description="Field sound insulation from on-site recordings.")
+    parser.add_argument("--version", action="version", version=f"fieldtl {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    bands = sub.add_parser("bands", help="band levels (Leq), LAeq, LCeq and maxima of one recording")
+    bands.add_argument("file", type=Path)
+    bands.add_argument("--channel", type=int, default=1, help="channel to analyse, 1-based (default 1)")
+    bands.add_argument("--calibration", type=Path, metavar="CAL.wav", help="recording of the calibrator tone")
+    bands.add_argument("--calibrator-db", type=float, default=94.0, help="calibrator level in dB (default 94.0)")
+    bands.add_argument("--octave", action="store_true", help="octave bands instead of one-third octaves")
+    bands.add_argument("--json", type=Path, metavar="OUT", help="write the results as JSON")
+    bands.set_defaults(run=_run_bands)
+
+    decay = sub.add_parser("decay", help="reverberation times (T20, T30, EDT) of one decay recording")
+    decay.add_argument("file", type=Path)
+    decay.add_argument("--method", required=True, choices=("impulse", "interrupted", "sweep"))
+    decay.add_argument("--channel", type=int, default=1, help="channel to analyse, 1-based (default 1)")
+    decay.add_argument("--octave", action="store_true", help="octave bands instead of one-third octaves")
+    decay.add_argument("--sweep-start-hz", type=float, help="sweep method: start frequency of the sweep played")
+    decay.add_argument("--sweep-stop-hz", type=float, help="sweep method: stop frequency of the sweep played")
+    decay.add_argument("--sweep-length-s", type=float, help="sweep method: duration of the sweep played")
+    decay.add_argument("--json", type=Path, metavar="OUT", help="write the results as JSON")
+    decay.set_defaults(run=_run_decay)
+
+    assess = sub.add_parser("assess", help="field result, ratings, verdict and quality findings of a survey")
+    assess.add_argument("survey", type=Path, metavar="SURVEY.toml")
+    assess.add_argument("--json", type=Path, metavar="OUT.json", help="write the results as JSON")
+    assess.add_argument("--csv", type=Path, metavar="OUT.csv", help="write the band table as CSV")
+    assess.add_argument("--plot", type=Path, metavar="OUT.png", help="draw the measured and reference curves")
+    assess.add_argument("--decision", choices=("guarded", "shared-risk"), default="guarded",
+                        help="verdict rule: guarded by the expanded uncertainty (default) or shared risk")
+    assess.add_argument("--speaker-rule", choices=("energy", "arithmetic", "simultaneous"), default="energy",
+                        help="how loudspeaker positions are combined (default energy)")
+    assess.set_defaults(run=_run_assess)
+
+    signal_cmd = sub.add_parser("signal", help="write a test signal for the loudspeaker (pink, white, sweep)")
+    signal_cmd.add_argument("kind", choices=("pink", "white", "sweep"))
+    signal_cmd.add_argument("out", type=Path, metavar="OUT.wav")
+    signal_cmd.add_argument("--seconds", type=float, default=30.0, help="length (default 30 s; sweep: 10 s)")
+    signal_cmd.add_argument("--level-dbfs", type=float, default=-18.0,
+                            help="RMS level in dB re full scale (default -18; noise peaks ~13 dB higher)")
+    signal_cmd.add_argument("--low-hz", type=float, default=40.0, help="lowest frequency (default 40 Hz)")
+    signal_cmd.add_argument("--high-hz", type=float, default=12_500.0, help="highest frequency (default 12.5 kHz)")
+    signal_cmd.add_argument("--fade-s", type=float, default=0.05, help="fade in and out (default 0.05 s)")
+    signal_cmd.add_argument("--sample-rate-hz", type=int, default=48_000)
+    signal_cmd.add_argument("--seed", type=int, help="noise seed, for a reproducible file")
+    signal_cmd.set_defaults(run=_run_signal)
+
+    demo = sub.add_parser("demo", help="assess the invented demo survey in sample_audio/")
+    demo.add_argument("--out", type=Path, help="folder for demo JSON, CSV and chart (default: print only)")
+    demo.set_defaults(run=_run_demo)
+    return parser
+
+
+# --- one recording --------------------------------------------------------------------------------
+
+def _run_bands(args: argparse.Namespace) -> int:
+    from fieldtl.analysis.levels import analyse_levels
+    from fieldtl.audio.calibration import calibration_from_tone
+    from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording, read_samples
+
+    recording = open_recording(args.file, channel=_channel(args.channel, args.file))
+    calibration = None
+    if args.calibration is not None:
+        cal_recording = open_recording(args.calibration)
+        calibration = calibration_from_tone(read_samples(cal_recording), sample_rate_hz=cal_recording.sample_rate_hz,
+                                            source_name=cal_recording.name, reference_db=args.calibrator_db)
+    stats = SampleStats(sample_rate_hz=recording.sample_rate_hz, source_name=recording.name)
+    with _progress_bar(recording.name, recording.duration_s) as progress:
+        analysis = analyse_levels(stats.watch(iter_blocks(recording)), sample_rate_hz=recording.sample_rate_hz,
+                                  level_offset_db=0.0 if calibration is None else calibration.offset_db,
+                                  fraction=1 if args.octave else 3, total_frames=recording.frames,
+                                  progress=progress, source_name=recording.name)
+    findings = stats.facts().findings + (calibration.findings if calibration else ())
+    unit = "dB" if calibration else "dB re FS"
+    print(f"{recording.name}: {recording.duration_s:.1f} s at {recording.sample_rate_hz} Hz, "
+          f"{'calibrated' if calibration else 'not calibrated (levels in dB re full scale)'}")
+    print(f"{'band Hz':>8}  {'Leq ' + unit:>12}")
+    for frequency_hz, level in zip(analysis.band_leq.nominal_hz, analysis.band_leq.values):
+        print(f"{frequency_hz:>8g}  {'-' if level is None else f'{level:.1f}':>12}")
+    print(f"LAeq {analysis.laeq_db:.1f}  LCeq {analysis.lceq_db:.1f}  LAFmax {analysis.lafmax_db:.1f}  "
+          f"LASmax {analysis.lasmax_db:.1f}  ({unit})")
+    _print_findings(findings)
+    if args.json:
+        _write_json(args.json, {
+            "frequencies_hz": _frequencies(analysis.band_leq.nominal_hz),
+            "leq_db": list(analysis.band_leq.rounded(1)),
+            "calibrated": calibration is not None,
+            "laeq_db": _round(analysis.laeq_db, 1), "lceq_db": _round(analysis.lceq_db, 1),
+            "lafmax_db": _round(analysis.lafmax_db, 1), "lasmax_db": _round(analysis.lasmax_db, 1),
+            "duration_s": round(recording.duration_s, 3),
+            "warnings": [_warning(f) for f in findings],
+        })
+    return 0
+
+
+def _run_decay(args: argparse.Namespace) -> int:
+    from fieldtl.audio.ingest import open_recording, read_samples
+    from fieldtl.bands import nominal_bands_hz
+    from fieldtl.measure import analyse_decay
+    from fieldtl.survey import TakeSpec
+
+    recording = open_recording(args.file, channel=_channel(args.channel, args.file))
+    spec = TakeSpec(file=args.file, role="decay", speaker=1, channel=recording.channel, method=args.method,
+                    sweep_start_hz=args.sweep_start_hz, sweep_stop_hz=args.sweep_stop_hz,
+                    sweep_length_s=args.sweep_length_s)
+    samples = read_samples(recording)
+    bands = nominal_bands_hz(63, 4000, fraction=1) if args.octave else nominal_bands_hz(50, 5000)
+    analysis = analyse_decay(samples, sample_rate_hz=recording.sample_rate_hz, spec=spec,
+                             source_name=recording.name, nominal_hz=bands, fraction=1 if args.octave else 3)
+    columns = {name: analysis.spectrum(name) for name in ("T20", "T30", "EDT")}
+    print(f"{recording.name}: {args.method} method, {analysis.decay_count} decay(s) ({analysis.averaging})")
+    print(f"{'band Hz':>8}  {'T20 s':>7}  {'T30 s':>7}  {'EDT s':>7}")
+    for i, frequency_hz in enumerate(analysis.nominal_hz):
+        cells = [columns[name].values[i] for name in columns]
+        print(f"{frequency_hz:>8g}  " + "  ".join(f"{'-' if v is None else f'{v:.2f}':>7}" for v in cells))
+    findings = analysis.all_findings()
+    _print_findings(findings)
+    if args.json:
+        _write_json(args.json, {
+            "frequencies_hz": _frequencies(analysis.nominal_hz),
+            **{f"{name}_s": list(spectrum.rounded(3)) for name, spectrum in columns.items()},
+            "averaging": analysis.averaging,
+            "warnings": [_warning(f) for f in findings],
+        })
+    return 0
+
+
+# --- a whole survey ----------------------------------------------------------------------------------
+
+def _run_assess(args: argparse.Namespace) -> int:
+    from fieldtl.survey import load_survey
+
+    survey = load_survey(args.survey)
+    return _assess_and_report(survey, json_path=args.json, csv_path=args.csv, plot_path=args.plot,
+                              decision=args.decision.replace("-", "_"), speaker_rule=args.speaker_rule)
+
+
+def _assess_and_report(survey: Any, *, json_path: Path | None, csv_path: Path | None, plot_path: Path | None,
+                       decision: str = "guarded", speaker_rule: str = "energy") -> int:
+    from fieldtl.assess import AssessOptions, assess
+    from fieldtl.measure import measure_survey
+    from fieldtl.report.export import assessment_to_csv, assessment_to_json, assessment_to_text
+
+    with _progress_bar(survey.source_name, math.inf) as progress:
+        measured = measure_survey(survey, progress=progress)
+    assessment = assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings,
+                        options=AssessOptions(decision_rule=decision, source_combination=speaker_rule))
+    print(assessment_to_text(assessment))
+    if json_path:
+        _write_json(json_path, assessment_to_json(assessment))
+    if csv_path:
+        _write_text(csv_path, assessment_to_csv(assessment))
+    if plot_path:
+        from fieldtl.report.plot import save_assessment_plot
+        save_assessment_plot(assessment, plot_path)
+    return 0
+
+
+def _run_demo(args: argparse.Namespace) -> int:
+    from fieldtl.survey import load_survey
+
+    survey_path = Path(__file__).resolve().parent.parent / "sample_audio" / "survey.toml"
+    if not survey_path.is_file():
+        raise InputError(f"survey.toml: the demo survey is missing ({survey_path}); run from a clone of the repository")
+    print("Invented demo data: a fictional building, not a real measurement.\n")
+    out = args.out
+    if out is not None:
+        out.mkdir(parents=True, exist_ok=True)
+    return _assess_and_report(load_survey(survey_path), json_path=out / "demo.json" if out else None,
+                              csv_path=out / "demo.csv" if out else None, plot_path=out / "demo.png" if out else None)
+
+
+# --- test signals -------------------------------------------------------------------------------------
+
+def _run_signal(args: argparse.Namespace) -> int:
+    from fieldtl.audio.signals import HEARING_CAUTION, SweepSpec, exponential_sweep, pink_noise, white_noise, write_signal_wav
+
+    print(f"CAUTION: {HEARING_CAUTION}")
+    if args.kind == "sweep":
+        duration_s = 10.0 if args.seconds == 30.0 else args.seconds
+        spec = SweepSpec(duration_s=duration_s, sample_rate_hz=args.sample_rate_hz, low_hz=args.low_hz,
+                         high_hz=args.high_hz, level_db_fs=args.level_dbfs, fade_in_s=args.fade_s,
+                         fade_out_s=min(args.fade_s, 0.01))
+        samples = exponential_sweep(spec, silence_s=3.0)
+        print(f"sweep {spec.low_hz:g}-{spec.high_hz:g} Hz over {spec.duration_s:g} s, then 3 s of silence; "
+              f"analyse with: fieldtl decay REC.wav --method sweep --sweep-start-hz {spec.low_hz:g} "
+              f"--sweep-stop-hz {spec.high_hz:g} --sweep-length-s {spec.duration_s:g}")
+    else:
+        make = pink_noise if args.kind == "pink" else white_noise
+        samples = make(args.seconds, sample_rate_hz=args.sample_rate_hz, level_db_fs=args.level_dbfs,
+                       low_hz=args.low_hz, high_hz=args.high_hz, fade_in_s=args.fade_s, fade_out_s=args.fade_s,
+                       seed=args.seed)
+        print(f"{args.kind} noise {args.low_hz:g}-{args.high_hz:g} Hz, {args.seconds:g} s at "
+              f"{args.level_dbfs:g} dB re full scale RMS")
+    write_signal_wav(args.out, samples, sample_rate_hz=args.sample_rate_hz)
+    print(f"wrote {args.out}")
+    return 0
+
+
+# --- helpers ------------------------------------------------------------------------------------------
+
+def _channel(channel: int, file: Path) -> int:
+    if channel < 1:
+        raise InputError(f"{file.name}: --channel counts from 1, got {channel}")
+    return channel - 1
+
+
+def _frequencies(nominal_hz: Sequence[float]) -> list[float | int]:
+    return [int(f) if float(f).is_integer() else f for f in nominal_hz]
+
+
+def _round(value: float, digits: int) -> float | None:
+    return round(value, digits) if math.isfinite(value) else None
+
+
+def _warning(finding: Any) -> dict[str, Any]:
+    return {"code": finding.code, "band_hz": finding.band_hz, "message": finding.message,
+            "severity": finding.severity, "action": finding.action}
+
+
+def _print_findings(findings: Sequence[Any]) -> None:
+    for finding in findings:
+        band = "" if finding.band_hz is None else f" [{finding.band_hz:g} Hz]"
+        print(f"{finding.severity.upper()} {finding.code}{band}: {finding.message}")
+
+
+def _write_json(path: Path, document: dict[str, Any]) -> None:
+    _write_text(path, json.dumps(document, indent=2, ensure_ascii=False) + "\n")
+
+
+def _write_text(path: Path, text: str) -> None:
+    try:
+        path.write_text(text, encoding="utf-8")
+    except BrokenPipeError:              # output piped into `head` and closed: not an error of ours
+        sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - silence the flush at interpreter exit
+        return 0
+    except OSError as exc:
+        raise InputError(f"{path.name}: cannot write ({exc.strerror or exc})") from None
+
+
+class _progress_bar:
+    """A one-line progress bar on stderr for long jobs in a terminal; a no-op otherwise."""
+
+    def __init__(self, name: str, duration_s: float) -> None:
+        self._name = name
+        self._active = sys.stderr.isatty() and duration_s >= PROGRESS_MIN_S
+
+    def __enter__(self) -> Callable[..., None] | None:
+        return self._update if self._active else None
+
+    def _update(self, *progress: Any) -> None:
+        """Called as (fraction) for one recording or (take name, fraction) for a survey."""
+        name, done = (self._name, progress[0]) if len(progress) == 1 else progress
+        filled = int(30 * done)
+        sys.stderr.write(f"\r{name[:30]:<30} [{'#' * filled}{'.' * (30 - filled)}] {done:4.0%}")
+        sys.stderr.flush()
+
+    def __exit__(self, *exc: object) -> None:
+        if self._active:
+            sys.stderr.write("\n")
+
+
+if __name__ == "__main__":
+    sys.exit(main())

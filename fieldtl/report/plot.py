@@ -1,0 +1,75 @@
+"""Chart of a measured curve against its shifted reference curve (matplotlib, no pyplot state).
+
+Unfavourable deviations are shaded; bands limited by background noise are drawn as bounds
+(an arrow pointing the way the true value may lie).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from fieldtl.assess import Assessment
+from fieldtl.bands import BandSpectrum
+from fieldtl.errors import InputError
+from fieldtl.rating import Rating
+
+MEASURED_COLOUR = "#1b4f72"
+REFERENCE_COLOUR = "#7d7d7d"
+DEVIATION_COLOUR = "#e67e22"
+
+
+def rating_figure(spectrum: BandSpectrum, rating: Rating, *, limited: tuple[bool, ...] = (),
+                  title: str = "") -> Figure:
+    """Measured band values, the shifted reference curve and the unfavourable deviations."""
+    figure = Figure(figsize=(7.0, 4.2), dpi=110, layout="constrained")
+    axes = figure.add_subplot()
+    bands = spectrum.nominal_hz
+    x = np.arange(len(bands))
+    values = spectrum.as_array()
+    axes.plot(x, values, marker="o", markersize=3.5, color=MEASURED_COLOUR, label=spectrum.quantity)
+    reference = rating.shifted_reference
+    ref_x = np.array([bands.index(f) for f in reference.nominal_hz])
+    ref_values = reference.as_array()
+    axes.plot(ref_x, ref_values, color=REFERENCE_COLOUR, linestyle="--",
+              label=f"shifted reference ({rating.standard})")
+    measured_at_ref = values[ref_x]
+    deviation = rating.unfavourable_deviation.as_array() > 0
+    low = np.minimum(measured_at_ref, ref_values)
+    high = np.maximum(measured_at_ref, ref_values)
+    axes.fill_between(ref_x, low, high, where=deviation, color=DEVIATION_COLOUR, alpha=0.35, step=None,
+                      interpolate=True, label=f"unfavourable deviation (sum {rating.deviation_sum_db:.1f} dB)")
+    if limited and any(limited):
+        direction = "^" if rating.standard in ("ISO 717-1", "ASTM E413") else "v"
+        marked = np.array(limited, dtype=bool)
+        axes.scatter(x[marked], values[marked], marker=direction, s=60, color="#c0392b", zorder=5,
+                     label="limited by background (bound)")
+    axes.set_xticks(x, [f"{f:g}" for f in bands], rotation=90, fontsize=7)
+    axes.set_xlabel("one-third-octave band (Hz)")
+    axes.set_ylabel("dB")
+    axes.grid(alpha=0.3)
+    headline = f"{rating.descriptor} = {rating.single_number_db} dB"
+    if rating.bound:
+        headline += f" ({rating.bound} bound)"
+    axes.set_title(f"{title}\n{headline}" if title else headline, fontsize=10)
+    axes.legend(fontsize=7, loc="best")
+    return figure
+
+
+def assessment_figure(assessment: Assessment, *, descriptor: str | None = None) -> Figure:
+    """The chart for one rating of an assessment (default: the requirement's, else the first)."""
+    if not assessment.ratings:
+        raise InputError(f"{assessment.source_name}: no rating to plot")
+    wanted = descriptor or (assessment.verdict.requirement.descriptor if assessment.verdict else None)
+    index = next((i for i, r in enumerate(assessment.ratings) if r.descriptor == wanted), 0)
+    return rating_figure(assessment.rated_spectra[index], assessment.ratings[index],
+                         limited=assessment.result.limited, title=assessment.title)
+
+
+def save_assessment_plot(assessment: Assessment, path: str | Path, *, descriptor: str | None = None) -> Path:
+    """Write the chart as PNG (or any format matplotlib infers from the suffix)."""
+    target = Path(path)
+    assessment_figure(assessment, descriptor=descriptor).savefig(target)
+    return target

@@ -1,0 +1,107 @@
+"""The `fieldtl` command: outputs in the documented JSON shapes, one-line errors and exit status 2."""
+
+import json
+import subprocess
+import sys
+
+import make_data
+import numpy as np
+import pytest
+import soundfile
+
+from fieldtl.cli import main
+
+
+def _run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_bands_json_of_a_full_scale_sine(tmp_path, capsys):
+    # A full-scale sine reads 10 lg(1/2) = -3.01 dB re full scale (analytic), in its band.
+    wav = make_data.write(tmp_path / "sine.wav", make_data.sine(1000, amplitude=1.0, duration_s=2.0), subtype="FLOAT")
+    code, out, _ = _run(capsys, "bands", wav, "--json", tmp_path / "b.json")
+    document = json.loads((tmp_path / "b.json").read_text())
+    assert code == 0 and "not calibrated" in out
+    assert set(document) >= {"frequencies_hz", "leq_db", "calibrated", "warnings"}
+    assert document["frequencies_hz"][0] == 50 and document["frequencies_hz"][-1] == 5000
+    assert document["calibrated"] is False
+    assert document["leq_db"][document["frequencies_hz"].index(1000)] == -3.0
+
+
+def test_bands_calibrated_and_octaves(tmp_path, capsys):
+    # Calibrator at -26 dBFS declared 94 dB -> offset 120 dB; a -20 dBFS RMS tone then reads 100.0 dB.
+    cal = make_data.calibrator_tone(tmp_path / "cal.wav", rms_dbfs=-26.0)
+    tone = make_data.write(tmp_path / "t.wav", make_data.sine(500, amplitude=np.sqrt(2) * 0.1, duration_s=2.0))
+    code, _, _ = _run(capsys, "bands", tone, "--calibration", cal, "--octave", "--json", tmp_path / "o.json")
+    document = json.loads((tmp_path / "o.json").read_text())
+    assert code == 0 and document["calibrated"] is True
+    assert document["frequencies_hz"] == [63, 125, 250, 500, 1000, 2000, 4000]
+    assert document["leq_db"][3] == pytest.approx(100.0, abs=0.05)
+
+
+def test_decay_json_shape(tmp_path, capsys):
+    rate = 48_000
+    time_s = np.arange(int(1.5 * rate)) / rate
+    ir = 0.3 * np.random.default_rng(0).standard_normal(time_s.size) * np.exp(-6.91 * time_s / 0.5)
+    wav = make_data.write(tmp_path / "ir.wav", ir, subtype="FLOAT")
+    code, out, _ = _run(capsys, "decay", wav, "--method", "impulse", "--json", tmp_path / "d.json")
+    document = json.loads((tmp_path / "d.json").read_text())
+    assert code == 0 and "T20" in out
+    assert set(document) >= {"frequencies_hz", "T20_s", "T30_s", "EDT_s", "warnings"}
+    assert len(document["T20_s"]) == len(document["frequencies_hz"]) == 21
+    t20_1k = document["T20_s"][document["frequencies_hz"].index(1000)]
+    assert t20_1k == pytest.approx(0.5, rel=0.1)    # one noise decay: random scatter of a few per cent
+
+
+def _file(path, data: bytes):
+    path.write_bytes(data)
+    return path
+
+
+@pytest.mark.parametrize("make_bad, needle", [
+    (lambda d: d / "missing.wav", "missing.wav: file not found"),
+    (lambda d: _file(d / "empty.wav", b""), "empty.wav: file is empty"),
+    (lambda d: _file(d / "text.wav", b"hello " * 50), "text.wav: not a readable WAV"),
+    (lambda d: make_data.truncated_copy(make_data.write(d / "ok.wav", np.zeros(48_000)), d / "cut.wav"),
+     "cut.wav: truncated file"),
+    (lambda d: make_data.write(d / "short.wav", np.zeros(480)), "short.wav:"),
+])
+@pytest.mark.parametrize("command", [["bands"], ["decay", "--method", "impulse"]])
+def test_bad_files_exit_2_with_one_line(tmp_path, capsys, make_bad, needle, command):
+    path = make_bad(tmp_path)
+    code, out, err = _run(capsys, command[0], path, *command[1:])
+    assert code == 2
+    assert err.count("\n") == 1 and err.startswith("fieldtl: ") and needle in err
+
+
+def test_nan_in_a_float_file(tmp_path, capsys):
+    samples = np.zeros(96_000)
+    samples[50_000] = np.nan
+    soundfile.write(str(tmp_path / "nan.wav"), samples, 48_000, subtype="FLOAT")
+    code, _, err = _run(capsys, "bands", tmp_path / "nan.wav")
+    assert code == 2 and "nan.wav: contains NaN or infinite samples" in err
+
+
+def test_signal_writes_a_wav_and_warns_about_hearing(tmp_path, capsys):
+    code, out, err = _run(capsys, "signal", "pink", tmp_path / "pink.wav", "--seconds", "2", "--seed", "1")
+    assert code == 0 and "hearing protection" in out
+    info = soundfile.info(str(tmp_path / "pink.wav"))
+    assert info.samplerate == 48_000 and info.frames == 96_000
+
+
+def test_signal_that_would_clip_is_refused(tmp_path, capsys):
+    code, _, err = _run(capsys, "signal", "white", tmp_path / "w.wav", "--level-dbfs", "0", "--seconds", "1")
+    assert code == 2 and "clip" in err and err.count("\n") == 1
+
+
+def test_unwritable_output_is_one_line(tmp_path, capsys):
+    wav = make_data.write(tmp_path / "sine.wav", make_data.sine(1000, amplitude=0.5, duration_s=1.0))
+    code, _, err = _run(capsys, "bands", wav, "--json", tmp_path / "no" / "such" / "dir.json")
+    assert code == 2 and err.startswith("fieldtl: dir.json: cannot write")
+
+
+def test_console_script_entry_point_runs():
+    completed = subprocess.run([sys.executable, "-m", "fieldtl.cli", "--version"], capture_output=True, text=True)
+    assert completed.returncode == 0 and completed.stdout.startswith("fieldtl ")
