@@ -39,6 +39,7 @@ from typing import Any, Literal
 
 from fieldtl.bands import BandSpectrum, nominal_bands_hz
 from fieldtl.errors import InputError
+from fieldtl.uncertainty import parse_requirement
 
 TestType = Literal["airborne", "impact"]
 Role = Literal["source", "receiving", "background", "decay", "source_corner", "receiving_corner", "impact"]
@@ -148,6 +149,12 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
     situation = str(test.get("uncertainty_situation", "B")).upper()
     if situation not in ("A", "B", "C"):
         raise InputError(f"{source_name}: [test] uncertainty_situation must be A, B or C, got {situation!r}")
+    requirement = test.get("requirement")
+    if requirement is not None:
+        try:
+            parse_requirement(requirement)
+        except InputError as exc:
+            raise InputError(f"{source_name}: [test] {exc}") from None
     calibration = _calibration(data.get("calibration"), base_dir, source_name)
     recordings = data.get("recording", [])
     if not isinstance(recordings, list):
@@ -164,7 +171,7 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
                          f"(a {test_type} test needs {', '.join(REQUIRED_ROLES[test_type])})")
     return Survey(title=str(test.get("title", "Untitled test")), test_type=test_type, geometry=geometry,
                   source_name=source_name, takes=takes, band_columns=band_columns, calibration=calibration,
-                  requirement=test.get("requirement"), construction=test.get("construction"),
+                  requirement=requirement, construction=test.get("construction"),
                   uncertainty_situation=situation)
 
 

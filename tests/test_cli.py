@@ -105,3 +105,50 @@ def test_unwritable_output_is_one_line(tmp_path, capsys):
 def test_console_script_entry_point_runs():
     completed = subprocess.run([sys.executable, "-m", "fieldtl.cli", "--version"], capture_output=True, text=True)
     assert completed.returncode == 0 and completed.stdout.startswith("fieldtl ")
+
+
+def _csv_survey(folder, *, test_lines=""):
+    bands = [100, 125, 160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250, 1600, 2000, 2500, 3150, 4000]
+    header = "frequency_hz," + ",".join(f"L1_s{s}_{m}" for s in (1, 2) for m in range(5)) + "," \
+        + ",".join(f"L2_s{s}_{m}" for s in (1, 2) for m in range(5)) + ",B_1,T_1,T_2,T_3,T_4,T_5,T_6"
+    rows = [header] + [f"{f}," + ",".join(["92.0"] * 10 + ["40.0"] * 10 + ["20.0"] + ["0.5"] * 6) for f in bands]
+    (folder / "slm.csv").write_text("\n".join(rows) + "\n")
+    (folder / "survey.toml").write_text(
+        '[test]\ntitle = "Invented pasted levels"\ntype = "airborne"\nseparating_area_m2 = 12.0\n'
+        'receiving_volume_m3 = 36.0\nsource_volume_m3 = 40.0\nrequirement = "DnT,w + Ctr >= 45"\n'
+        f'band_levels = "slm.csv"\n{test_lines}')
+    return folder / "survey.toml"
+
+
+def test_assess_pasted_levels_writes_json_csv_and_plot(tmp_path, capsys):
+    survey = _csv_survey(tmp_path)
+    code, out, _ = _run(capsys, "assess", survey, "--json", tmp_path / "r.json", "--csv", tmp_path / "r.csv",
+                        "--plot", tmp_path / "r.png")
+    assert code == 0 and "Verdict: PASS" in out
+    document = json.loads((tmp_path / "r.json").read_text())
+    # D = 52.0 and T = T0 = 0.5 s, so DnT = D = 52.0 in every band (ISO 16283-1, DnT = D + 10 lg(T/T0)).
+    assert set(document["bands"]["DnT"]) == {52.0}
+    assert document["ratings"]["DnT,w"]["value"] == 52
+    assert document["verdict"]["requirement"] == "DnT,w + Ctr >= 45"
+    assert (tmp_path / "r.csv").read_text().startswith("frequency_hz,L1,L2,B,T,D,Dn,DnT,R_prime,limited")
+    assert (tmp_path / "r.png").read_bytes()[:4] == b"\x89PNG"
+
+
+@pytest.mark.parametrize("edit, needle", [
+    (lambda t: t.replace("receiving_volume_m3 = 36.0", "receiving_volume_m3 = 0"), "receiving_volume_m3 must be a positive"),
+    (lambda t: t.replace("separating_area_m2 = 12.0", "separating_area_m2 = -12.0"), "separating_area_m2 must be a positive"),
+    (lambda t: t + "loudness = 3\n", "unknown key 'loudness' in [test]"),
+    (lambda t: t.replace('band_levels = "slm.csv"', 'band_levels = "nope.csv"'), "band_levels file 'nope.csv' not found"),
+    (lambda t: t.replace('band_levels = "slm.csv"', ""), "no recording with role 'source'"),
+    (lambda t: t.replace('requirement = "DnT,w + Ctr >= 45"', 'requirement = "DnT,w + Ctr > 45"'), "survey.toml: [test] requirement 'DnT,w + Ctr > 45'"),
+])
+def test_assess_bad_input_exits_2_with_one_line(tmp_path, capsys, edit, needle):
+    survey = _csv_survey(tmp_path)
+    survey.write_text(edit(survey.read_text()))
+    code, out, err = _run(capsys, "assess", survey)
+    assert code == 2 and err.count("\n") == 1 and needle in err, err
+
+
+def test_assess_missing_survey(tmp_path, capsys):
+    code, _, err = _run(capsys, "assess", tmp_path / "none.toml")
+    assert code == 2 and "none.toml: survey file not found" in err
