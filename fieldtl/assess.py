@@ -46,7 +46,6 @@ class AssessOptions:
     area_rule: AreaRule = "smaller"                    # S = max(S, V/7.5), V of the smaller room (from memory)
     decision_rule: DecisionRule = "guarded"
     coverage_factor: float | None = None               # None: 1.65 guarded, 1.96 shared risk
-    declared_lab_rating_db: float | None = None        # the element's lab Rw, for a plausibility check
 
 
 @dataclass(frozen=True, slots=True)
@@ -109,7 +108,7 @@ def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
     found += check_background(result.background_margin_db, result.limited, test_type=survey.test_type)
     found += rating_findings
     field_r = next((r.single_number_db for r in ratings if r.descriptor == "R'w"), None)
-    found += check_against_lab_rating(field_rating_db=field_r, lab_rating_db=options.declared_lab_rating_db)
+    found += check_against_lab_rating(field_rating_db=field_r, lab_rating_db=survey.element_lab_rw_db)
     table_u = {r.descriptor: table_uncertainty(r.descriptor, situation=survey.uncertainty_situation)
                for r in ratings}
     verdict, combined, verdict_findings = _verdict(survey, result, rated, options)

@@ -9,6 +9,8 @@ Survey file, paths relative to the file::
     receiving_volume_m3 = 31.5
     source_volume_m3 = 35.0           # optional
     requirement = "DnT,w + Ctr >= 45" # optional
+    construction = "..."              # optional description of the separating element
+    element_lab_rw_db = 55            # optional: the element's laboratory Rw, for a plausibility check
     band_levels = "slm.csv"           # optional: band levels instead of recordings
 
     [calibration]                     # optional; without it levels are dB re full scale
@@ -55,7 +57,8 @@ ROLES_BY_TYPE: dict[str, tuple[str, ...]] = {
 }
 
 _TEST_KEYS = {"title", "type", "separating_area_m2", "receiving_volume_m3", "source_volume_m3",
-              "requirement", "band_levels", "construction", "uncertainty_situation"}
+              "requirement", "band_levels", "construction", "uncertainty_situation",
+              "element_lab_rw_db"}
 _CALIBRATION_KEYS = {"file", "reference_db", "file_after", "channel"}
 _RECORDING_KEYS = {"file", "role", "speaker", "method", "channel", "sweep_start_hz", "sweep_stop_hz",
                    "sweep_length_s"}
@@ -114,6 +117,7 @@ class Survey:
     requirement: str | None = None
     construction: str | None = None
     uncertainty_situation: str = "B"
+    element_lab_rw_db: float | None = None
 
 
 def load_survey(path: str | Path) -> Survey:
@@ -172,7 +176,8 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
     return Survey(title=str(test.get("title", "Untitled test")), test_type=test_type, geometry=geometry,
                   source_name=source_name, takes=takes, band_columns=band_columns, calibration=calibration,
                   requirement=requirement, construction=test.get("construction"),
-                  uncertainty_situation=situation)
+                  uncertainty_situation=situation,
+                  element_lab_rw_db=_positive(test, "element_lab_rw_db", source_name, required=False))
 
 
 _COLUMN = re.compile(r"^(?P<kind>L1|L2|Li|B|T|L1c|L2c)(?:_s(?P<speaker>\d+))?(?:_(?P<label>[A-Za-z0-9]+))?$")

@@ -111,3 +111,11 @@ def test_octave_free_text_report_mentions_cautions(tmp_path):
     text = assessment_to_text(_assess(_survey(tmp_path)))
     assert "hearing protection" in text and "accredited procedure" in text
     assert math.isfinite(float(text.split("DnT,w")[1].split("dB")[0]))
+
+
+def test_field_result_above_the_declared_lab_value_is_flagged(tmp_path):
+    # R'w 51 against a declared lab Rw of 48: more than 2 dB above (common practice) -> input error suspected.
+    result = _assess(_survey(tmp_path, extra_test_keys="element_lab_rw_db = 48"))
+    assert "field_above_lab" in {f.code for f in result.findings}
+    result = _assess(_survey(tmp_path, extra_test_keys="element_lab_rw_db = 55"))
+    assert "field_above_lab" not in {f.code for f in result.findings}
