@@ -1,0 +1,297 @@
+"""Band levels, A/C-weighted levels and their time histories from a stream of sample blocks.
+
+:func:`analyse_levels` reads any iterable of 1-D sample blocks (scaled to ±1) once, in order,
+and keeps only filter states and one row of sums per history interval, so memory does not grow
+with the length of the recording beyond that history (an hour at 1 s intervals and 28 bands is
+3600 x 32 floats).
+
+Level of a quantity = 10 lg(mean square) + ``level_offset_db``; with offset 0 levels are in dB
+re full scale (a full-scale sine reads -3.01 dB). A calibration supplies the offset.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Iterator
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import signal
+
+from fieldtl.analysis.filterbank import BankStream, FilterBank, design_filter_bank, fraction_name
+from fieldtl.analysis.weighting import (FAST_TIME_CONSTANT_S, SLOW_TIME_CONSTANT_S, exponential_coefficient,
+                                        weighting_sos)
+from fieldtl.bands import BandSpectrum, Fraction
+from fieldtl.errors import InputError
+
+DEFAULT_RANGE_HZ: dict[int, tuple[float, float]] = {3: (50.0, 5000.0), 1: (63.0, 4000.0)}  # ISO 16283 bands
+CHUNK_FRAMES = 1 << 17   # blocks are regrouped into chunks of this many frames (2.7 s at 48 kHz)
+# Start-up transient of the A and C filters, discarded before LAeq, LCeq and the F/S levels:
+# their slowest poles are the double pole at f1 = 20.6 Hz; the digital C filter's impulse response
+# has all but 1e-9 of its energy out after 75 ms, the A filter's after 21 ms (computed).
+WEIGHTING_SETTLE_S = 0.1
+# Shortest averaging accepted after a transient is discarded (so a recording must last at least
+# settle + this): 1/B for a band (bandwidth-time product 1) and one F time constant for the
+# weighted levels. Common practice floor, far below what ISO 16283-1 asks of a measurement.
+MIN_BAND_AVERAGING_BANDWIDTHS = 1.0
+MIN_WEIGHTED_AVERAGING_S = FAST_TIME_CONSTANT_S
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class LevelHistory:
+    """Levels per history interval (the last one may be shorter); arrays are read-only.
+
+    ``band_leq_db`` has shape (intervals, bands); nan marks an interval with no samples left
+    after a band's start-up transient. ``lafmax_db`` / ``lasmax_db`` are the maxima of the F / S
+    time-weighted A level within each interval.
+    """
+
+    interval_s: float
+    band_leq_db: np.ndarray
+    laeq_db: np.ndarray
+    lceq_db: np.ndarray
+    lafmax_db: np.ndarray
+    lasmax_db: np.ndarray
+
+    @property
+    def start_s(self) -> np.ndarray:
+        """Start time of each interval from the start of the recording."""
+        return np.arange(self.laeq_db.size) * self.interval_s
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class LevelAnalysis:
+    """What :func:`analyse_levels` found, and over which stretch of the recording."""
+
+    source_name: str
+    sample_rate_hz: float
+    duration_s: float
+    level_offset_db: float
+    band_leq: BandSpectrum                    # quantity "Leq"
+    band_averaging_s: tuple[float, ...]       # time averaged per band after its start-up transient
+    laeq_db: float                            # from WEIGHTING_SETTLE_S to the end
+    lceq_db: float
+    lafmax_db: float
+    lasmax_db: float
+    history: LevelHistory
+
+
+def analyse_levels(
+    blocks: Iterable[np.ndarray],
+    *,
+    sample_rate_hz: float,
+    level_offset_db: float = 0.0,
+    fraction: Fraction = 3,
+    band_range_hz: tuple[float, float] | None = None,
+    history_interval_s: float = 1.0,
+    total_frames: int | None = None,
+    progress: Callable[[float], None] | None = None,
+    source_name: str = "signal",
+) -> LevelAnalysis:
+    """Band Leq, LAeq, LCeq, LAFmax, LASmax and their histories of one recording.
+
+    ``blocks`` are consecutive 1-D blocks of samples scaled to ±1, of any sizes. ``band_range_hz``
+    gives the lowest and highest nominal band (default 50-5000 Hz one-third octaves, 63-4000 Hz
+    octaves). ``progress`` is called with the fraction done after each chunk when ``total_frames``
+    is given, and with 1.0 at the end in any case.
+
+    Each band discards its start-up transient (5/B, see filterbank.SETTLE_BANDWIDTHS); the
+    weighted levels discard WEIGHTING_SETTLE_S. Raises InputError (one line naming
+    ``source_name``) for bad blocks, non-finite samples, a band the sample rate cannot hold, or a
+    recording shorter than the shortest usable length. Does not calibrate, correct for
+    background noise or judge the measurement; those are for the caller.
+    """
+    if fraction not in DEFAULT_RANGE_HZ:
+        raise InputError(f"{source_name}: fraction must be 1 (octaves) or 3 (one-third octaves), got {fraction}")
+    low_hz, high_hz = band_range_hz or DEFAULT_RANGE_HZ[fraction]
+    try:
+        bank = design_filter_bank(sample_rate_hz=sample_rate_hz, fraction=fraction, low_hz=low_hz,
+                                  high_hz=high_hz)
+    except InputError as error:
+        raise InputError(f"{source_name}: {error}") from None
+    if not (math.isfinite(history_interval_s) and history_interval_s * sample_rate_hz >= 1):
+        raise InputError(f"{source_name}: history interval must be at least one sample, got {history_interval_s}")
+    shortest_s = shortest_usable_s(bank)
+    if total_frames is not None:
+        _require_length(total_frames, sample_rate_hz, shortest_s, source_name, bank)
+
+    meter = _Meter(bank, interval_frames=round(history_interval_s * sample_rate_hz))
+    for chunk in _chunks(blocks, source_name):
+        meter.push(chunk)
+        if progress is not None and total_frames:
+            progress(min(1.0, meter.frames / total_frames))
+    _require_length(meter.frames, sample_rate_hz, shortest_s, source_name, bank)
+    if progress is not None:
+        progress(1.0)
+    return meter.result(source_name=source_name, level_offset_db=level_offset_db,
+                        interval_s=history_interval_s)
+
+
+def shortest_usable_s(bank: FilterBank) -> float:
+    """Shortest recording that leaves something to average in every band and weighted level."""
+    band_s = max(band.settle_s + MIN_BAND_AVERAGING_BANDWIDTHS / band.bandwidth_hz for band in bank.bands)
+    return max(band_s, WEIGHTING_SETTLE_S + MIN_WEIGHTED_AVERAGING_S)
+
+
+def _require_length(frames: int, sample_rate_hz: float, shortest_s: float, source_name: str,
+                    bank: FilterBank) -> None:
+    if frames / sample_rate_hz < shortest_s:
+        lowest = bank.bands[0]
+        raise InputError(f"{source_name}: {frames / sample_rate_hz:.3f} s is too short; the "
+                         f"{lowest.nominal_hz:g} Hz {fraction_name(bank.fraction)} band needs at least "
+                         f"{shortest_s:.3f} s (start-up transient {lowest.settle_s:.3f} s discarded)")
+
+
+def _chunks(blocks: Iterable[np.ndarray], source_name: str) -> Iterator[np.ndarray]:
+    """Regroup checked blocks into chunks of CHUNK_FRAMES frames (the last may be shorter)."""
+    pending: list[np.ndarray] = []
+    pending_frames = 0
+    frames_seen = 0
+    for number, block in enumerate(blocks):
+        samples = np.asarray(block, dtype=float)
+        if samples.ndim != 1:
+            raise InputError(f"{source_name}: block {number} has shape {samples.shape}; expected 1-D samples")
+        if not np.isfinite(samples).all():
+            bad = frames_seen + int(np.flatnonzero(~np.isfinite(samples))[0])
+            raise InputError(f"{source_name}: non-finite sample (nan or inf) at frame {bad}")
+        frames_seen += samples.size
+        pending.append(samples)
+        pending_frames += samples.size
+        if pending_frames < CHUNK_FRAMES:
+            continue
+        joined = np.concatenate(pending) if len(pending) > 1 else pending[0]
+        start = 0
+        while joined.size - start >= CHUNK_FRAMES:
+            yield joined[start : start + CHUNK_FRAMES]
+            start += CHUNK_FRAMES
+        pending = [joined[start:]]
+        pending_frames = joined.size - start
+    if pending_frames:
+        yield np.concatenate(pending)
+
+
+class _Meter:
+    """Mutable accumulation state of one analysis: filter states and per-interval sums."""
+
+    def __init__(self, bank: FilterBank, *, interval_frames: int) -> None:
+        rate_hz = bank.sample_rate_hz
+        self.bank = bank
+        self.frames = 0
+        self._bank_stream = BankStream(bank)
+        self._settle_frames = [math.ceil(band.settle_s * rate_hz / 2**band.stage) for band in bank.bands]
+        self._weighting_settle = math.ceil(WEIGHTING_SETTLE_S * rate_hz)
+        self._weighting = [(sos, np.zeros((sos.shape[0], 2)))
+                           for sos in (weighting_sos("A", sample_rate_hz=rate_hz),
+                                       weighting_sos("C", sample_rate_hz=rate_hz))]
+        self._time_weighting = [(exponential_coefficient(tau, sample_rate_hz=rate_hz), np.zeros(1))
+                                for tau in (FAST_TIME_CONSTANT_S, SLOW_TIME_CONSTANT_S)]
+        # channels: the bands, then A and C
+        self._energy = _IntervalTable(len(bank.bands) + 2, interval_frames, "sum")
+        self._maxima = _IntervalTable(2, interval_frames, "max")   # F, S
+
+    def push(self, chunk: np.ndarray) -> None:
+        first = self.frames
+        self.frames += chunk.size
+        for channel, (start, filtered) in enumerate(self._bank_stream.push(chunk)):
+            band = self.bank.bands[channel]
+            self._energy.add(channel, filtered, first_index=start, step=2**band.stage,
+                             valid_from=self._settle_frames[channel])
+        weighted = []
+        for i, (sos, state) in enumerate(self._weighting):
+            filtered, new_state = signal.sosfilt(sos, chunk, zi=state)
+            self._weighting[i] = (sos, new_state)
+            self._energy.add(len(self.bank.bands) + i, filtered, first_index=first, step=1,
+                             valid_from=self._weighting_settle)
+            weighted.append(filtered)
+        skip = max(0, self._weighting_settle - first)
+        if skip >= chunk.size:
+            return
+        squared_a = np.square(weighted[0][skip:])
+        for i, (alpha, state) in enumerate(self._time_weighting):
+            # exponential time weighting F / S (IEC 61672-1), sampled: y[n] = α y[n-1] + (1 - α) x²[n]
+            averaged, new_state = signal.lfilter([1.0 - alpha], [1.0, -alpha], squared_a, zi=state)
+            self._time_weighting[i] = (alpha, new_state)
+            self._maxima.add(i, averaged, first_index=first + skip, step=1, valid_from=0)
+
+    def result(self, *, source_name: str, level_offset_db: float, interval_s: float) -> LevelAnalysis:
+        rate_hz = self.bank.sample_rate_hz
+        n_bands = len(self.bank.bands)
+        sums, counts = self._energy.totals()
+        with np.errstate(divide="ignore", invalid="ignore"):
+            totals_db = 10 * np.log10(sums / counts) + level_offset_db
+            rows_db = 10 * np.log10(self._energy.rows() / self._energy.row_counts()) + level_offset_db
+            maxima = self._maxima.rows()
+            max_db = np.where(np.isneginf(maxima), np.nan, 10 * np.log10(np.maximum(maxima, 0.0))) + level_offset_db
+        rows = rows_db.shape[0]
+        max_db = np.vstack([max_db, np.full((rows - max_db.shape[0], 2), np.nan)])
+        history = LevelHistory(interval_s, _frozen(rows_db[:, :n_bands]), _frozen(rows_db[:, n_bands]),
+                               _frozen(rows_db[:, n_bands + 1]), _frozen(max_db[:, 0]), _frozen(max_db[:, 1]))
+        averaging_s = tuple(float(counts[i]) * 2**band.stage / rate_hz for i, band in enumerate(self.bank.bands))
+        return LevelAnalysis(
+            source_name=source_name, sample_rate_hz=rate_hz, duration_s=self.frames / rate_hz,
+            level_offset_db=level_offset_db,
+            band_leq=BandSpectrum.from_array(self.bank.nominal_hz, totals_db[:n_bands], "dB", "Leq",
+                                             fraction=self.bank.fraction),
+            band_averaging_s=averaging_s, laeq_db=float(totals_db[n_bands]), lceq_db=float(totals_db[n_bands + 1]),
+            lafmax_db=float(np.nanmax(max_db[:, 0])), lasmax_db=float(np.nanmax(max_db[:, 1])), history=history)
+
+
+def _frozen(values: np.ndarray) -> np.ndarray:
+    values = np.ascontiguousarray(values)
+    values.flags.writeable = False
+    return values
+
+
+class _IntervalTable:
+    """Per-interval sum of squares and sample count ("sum"), or maximum ("max"), of several
+    channels; grows by one row per history interval of ``interval_frames`` input frames."""
+
+    def __init__(self, channels: int, interval_frames: int, kind: str) -> None:
+        self._interval_frames = interval_frames
+        self._kind = kind
+        fill = 0.0 if kind == "sum" else -np.inf
+        self._fill = fill
+        self._values = np.full((16, channels), fill)
+        self._counts = np.zeros((16, channels), dtype=np.int64)
+        self._rows = 0
+
+    def add(self, channel: int, samples: np.ndarray, *, first_index: int, step: int, valid_from: int) -> None:
+        """Add samples whose first one has index ``first_index`` at a rate of one per ``step``
+        input frames; samples with an index below ``valid_from`` are skipped."""
+        skip = max(0, valid_from - first_index)
+        if skip >= samples.size:
+            return
+        samples = samples[skip:]
+        first_index += skip
+        first_row = first_index * step // self._interval_frames
+        last_row = (first_index + samples.size - 1) * step // self._interval_frames
+        self._grow(last_row + 1)
+        # sample j belongs to row floor(j * step / interval_frames); row m starts at ceil(m F / step)
+        cuts = [-(-row * self._interval_frames // step) - first_index for row in range(first_row + 1, last_row + 1)]
+        bounds = [0, *cuts, samples.size]
+        for row, (start, stop) in enumerate(zip(bounds, bounds[1:]), start=first_row):
+            piece = samples[start:stop]
+            if piece.size == 0:
+                continue
+            if self._kind == "sum":
+                self._values[row, channel] += np.dot(piece, piece)
+                self._counts[row, channel] += piece.size
+            else:
+                self._values[row, channel] = max(self._values[row, channel], piece.max())
+
+    def _grow(self, rows: int) -> None:
+        if rows > self._values.shape[0]:
+            capacity = max(rows, 2 * self._values.shape[0])
+            extra = capacity - self._values.shape[0]
+            self._values = np.vstack([self._values, np.full((extra, self._values.shape[1]), self._fill)])
+            self._counts = np.vstack([self._counts, np.zeros((extra, self._counts.shape[1]), dtype=np.int64)])
+        self._rows = max(self._rows, rows)
+
+    def rows(self) -> np.ndarray:
+        return self._values[: self._rows]
+
+    def row_counts(self) -> np.ndarray:
+        return self._counts[: self._rows]
+
+    def totals(self) -> tuple[np.ndarray, np.ndarray]:
+        return self.rows().sum(axis=0), self.row_counts().sum(axis=0)
