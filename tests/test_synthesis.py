@@ -6,7 +6,12 @@ Decay rates are fitted on Schroeder curves of bands filtered with scipy Butterwo
 designed here. A decay is exponential in energy, 60 dB in T (definition of T, ISO 3382-2).
 """
 
+import contextlib
+import importlib.util
+import io
+import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -15,6 +20,7 @@ from hypothesis import strategies as hs
 from scipy import signal
 
 from fieldtl.audio.calibration import calibration_from_tone
+from fieldtl.audio.ingest import open_recording, read_samples
 from fieldtl.audio.synthesis import (
     calibrator_tone,
     impulse_response_with_decay,
@@ -23,6 +29,7 @@ from fieldtl.audio.synthesis import (
 )
 from fieldtl.bands import BandSpectrum
 from fieldtl.errors import InputError
+from fieldtl.survey import load_survey
 
 SAMPLE_RATE_HZ = 48_000
 BANDS_HZ = (50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0, 250.0, 315.0, 400.0, 500.0, 630.0, 800.0, 1000.0,
@@ -288,3 +295,86 @@ def test_calibrator_tone_level_frequency_and_fade():
     assert calibration.offset_db == pytest.approx(125.0, abs=0.02)
     with pytest.raises(InputError, match="would clip"):
         calibrator_tone(level_dbfs=-2.0, duration_s=1.0, sample_rate_hz=SAMPLE_RATE_HZ, seed=2)
+
+
+# --- the committed demo (sample_audio/, INVENTED data written by sample_audio/make_demo.py) ------
+
+DEMO_DIR = Path(__file__).resolve().parents[1] / "sample_audio"
+
+
+@pytest.fixture(scope="module")
+def demo_expected():
+    return json.loads((DEMO_DIR / "expected.json").read_text(encoding="utf-8"))
+
+
+def test_demo_files_read_back_at_their_intended_band_levels(demo_expected):
+    # Every steady take through fieldtl's ingest, then plain FFT integration between the IEC edges:
+    # within 0.3 dB of the level it was built for (calibration: full-scale RMS = 125 dB) at 100-3150 Hz.
+    survey = load_survey(DEMO_DIR / "survey.toml")
+    offset_db = demo_expected["calibration"]["recordings_made_with_offset_db"]
+    takes = demo_expected["as_recorded"]["takes_band_level_db"]
+    required = [i for i, f in enumerate(BANDS_HZ) if 100.0 <= f <= 3150.0]
+    receiving = {1: [], 2: []}
+    for spec in survey.takes:
+        recording = open_recording(spec.file)
+        assert (recording.sample_rate_hz, recording.channels, recording.format, recording.subtype) == (
+            48_000, 1, "FLAC", "PCM_16")
+        if spec.role == "decay":
+            continue
+        levels_db = fft_band_levels_db(read_samples(recording), offset_db=offset_db)
+        np.testing.assert_allclose(levels_db[required], np.array(takes[recording.name])[required], atol=0.3)
+        if spec.role == "receiving":
+            receiving[spec.speaker].append(levels_db)
+    # The energy mean over the five microphones is the intended L2 plus background (all bands).
+    for levels in receiving.values():
+        mean_db = 10 * np.log10(np.mean(10 ** (np.array(levels) / 10), axis=0))
+        np.testing.assert_allclose(mean_db, demo_expected["as_recorded"]["receiving_level_db"], atol=0.3)
+
+
+def test_demo_truth_obeys_the_standard_identities(demo_expected):
+    true = demo_expected["true"]
+    geometry = demo_expected["geometry"]
+    r_prime = np.array(true["apparent_sound_reduction_index_db"])
+    # DnT = R' + 10 lg(0.32 V / S) and Dn = R' + 10 lg(10 / S) (facts sheet 1.1, derived from ISO 16283-1).
+    np.testing.assert_allclose(true["standardized_level_difference_db"], r_prime + 10 * np.log10(
+        0.32 * geometry["receiving_volume_m3"] / geometry["separating_area_m2"]), atol=0.011)
+    np.testing.assert_allclose(true["normalized_level_difference_db"],
+                               r_prime + 10 * np.log10(10 / geometry["separating_area_m2"]), atol=0.011)
+    source_db = np.array(true["source_level_db"])
+    # Source-room spectrum: adjacent one-third octaves differ by at most 8 dB (ISO 16283-1, facts sheet 1.7).
+    assert np.max(np.abs(np.diff(source_db))) <= 8.0
+    # Background rule bands (facts sheet 1.8): margin <= 6 dB limited, 6-10 dB corrected.
+    margins = np.array(demo_expected["as_recorded"]["background_margin_db"])
+    assert demo_expected["by_background_rule"]["limited"] == [bool(m <= 6.0) for m in margins]
+    assert "corrected" in demo_expected["as_recorded"]["background_action"]
+
+
+def test_demo_calibration_tones_give_the_invented_offsets(demo_expected):
+    # 94 dB tone at -31.0 dB re full scale before, -31.1 after: offsets 125.0 and 125.1 dB.
+    calibration = demo_expected["calibration"]
+    for name, expected_db in (("cal_before.flac", calibration["offset_before_db"]),
+                              ("cal_after.flac", calibration["offset_after_db"])):
+        recording = open_recording(DEMO_DIR / name)
+        found = calibration_from_tone(read_samples(recording), sample_rate_hz=recording.sample_rate_hz,
+                                      source_name=name, reference_db=calibration["calibrator_db"])
+        assert found.offset_db == pytest.approx(expected_db, abs=0.02)
+
+
+def test_demo_script_reproduces_the_committed_files(tmp_path, demo_expected):
+    # Fixed seeds: regenerating gives the committed truth and samples (to one 16-bit step, so a
+    # different FFT library's last-bit rounding cannot fail it). If this fails after a numpy or
+    # scipy upgrade changed random streams, rerun sample_audio/make_demo.py and commit.
+    spec = importlib.util.spec_from_file_location("make_demo", DEMO_DIR / "make_demo.py")
+    make_demo = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(make_demo)
+    with contextlib.redirect_stdout(io.StringIO()):
+        make_demo.main(tmp_path)
+    regenerated = json.loads((tmp_path / "expected.json").read_text(encoding="utf-8"))
+    assert regenerated.keys() == demo_expected.keys()
+    assert regenerated["true"] == demo_expected["true"]
+    survey_text = (DEMO_DIR / "survey.toml").read_text(encoding="utf-8")
+    assert (tmp_path / "survey.toml").read_text(encoding="utf-8") == survey_text
+    for name in ("rec_s1_p1.flac", "bg_p2.flac", "ir_s2_p3.flac", "cal_after.flac"):
+        fresh = read_samples(open_recording(tmp_path / name))
+        committed = read_samples(open_recording(DEMO_DIR / name))
+        assert np.max(np.abs(fresh - committed)) <= 2.0**-15, name

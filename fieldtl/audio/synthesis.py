@@ -86,8 +86,8 @@ def impulse_response_with_decay(reverberation_times_s: BandSpectrum, *, sample_r
 
     Does not model a direct sound, early reflections, room modes or air absorption; each band
     decays with one single exponential, so its T20, T30 and EDT are all the band's T.
-    Multiplying band-limited noise by a decaying envelope widens its spectrum slightly
-    (by about 2.2/T Hz), so a little energy reaches the neighbouring bands.
+    Multiplying band-limited noise by a decaying envelope smears its spectrum by a Lorentzian
+    about 2.2/T Hz wide at half power, so a little energy reaches the neighbouring bands.
     """
     name = "impulse_response_with_decay"
     n_samples = _sample_count(name, duration_s, sample_rate_hz)
@@ -126,9 +126,9 @@ def interrupted_noise_with_decay(band_levels_db: BandSpectrum, reverberation_tim
     switch-off its amplitude falls as exp(-6.91 t / T_band), 60 dB of energy in T (the
     interrupted-noise method, ISO 3382-2). ``background_db`` adds steady background noise
     (:func:`noise_with_band_levels`, its own bands) over the whole signal. Levels use
-    ``level_offset_db`` as :func:`noise_with_band_levels` does; the steady part's band levels
-    are exact only in expectation (the exact normalisation covers the whole signal, decay
-    included). Raises InputError if the result would clip. Does not model the loudspeaker's own
+    ``level_offset_db`` as :func:`noise_with_band_levels` does. Each band's carrier noise has its
+    exact power over the whole signal, so the steady part's band levels are exact only in
+    expectation (about 4.34/sqrt(B·steady_s) dB of scatter for a band B Hz wide). Raises InputError if the result would clip. Does not model the loudspeaker's own
     switch-off transient or the room's build-up before ``steady_s``.
     """
     name = "interrupted_noise_with_decay"
