@@ -12,6 +12,7 @@ from typing import Any
 
 from fieldtl.assess import Assessment
 from fieldtl.bands import BandSpectrum
+from fieldtl.findings import Finding
 from fieldtl.insulation import AirborneResult
 from fieldtl.rating import Rating
 
@@ -121,14 +122,32 @@ def assessment_to_text(assessment: Assessment) -> str:
         verdict = assessment.verdict
         lines += ["", f"Verdict: {verdict.outcome.upper()} against '{verdict.requirement}'", f"  {verdict.statement}"]
     if assessment.findings:
-        lines += ["", "Quality findings"]
-        for finding in assessment.findings:
-            band = "" if finding.band_hz is None else f" [{_number(finding.band_hz)} Hz]"
-            lines.append(f"  {finding.severity.upper():<7} {finding.code}{band}: {finding.message}")
+        lines += ["", "Quality findings (most serious first; repeats in other bands folded together)"]
+        for finding, count, bands in grouped_findings(assessment.findings):
+            more = f" (and {count - 1} more: {', '.join(f'{_number(b)}' for b in bands[1:])} Hz)" if count > 1 else ""
+            lines.append(f"  {finding.severity.upper():<7} {finding.code}: {finding.message}{more}")
             if finding.action:
                 lines.append(f"          → {finding.action}")
     lines += ["", *(f"Caution: {c}" for c in assessment.cautions)]
     return "\n".join(lines)
+
+
+_SEVERITY_ORDER = {"error": 0, "warning": 1, "info": 2}
+
+
+def grouped_findings(findings: tuple[Finding, ...]) -> list[tuple[Finding, int, tuple[float, ...]]]:
+    """Findings folded by (code, action, the take named before the first comma), most serious first.
+
+    Returns (first finding of the group, how many, the bands of the group in order). The JSON keeps
+    every finding; this is for people reading on a screen.
+    """
+    groups: dict[tuple[str, str, str], list[Finding]] = {}
+    for finding in findings:
+        take = finding.message.split(",")[0] if finding.band_hz is not None else finding.message
+        groups.setdefault((finding.code, finding.action, take), []).append(finding)
+    folded = [(members[0], len(members), tuple(f.band_hz for f in members if f.band_hz is not None))
+              for members in groups.values()]
+    return sorted(folded, key=lambda group: _SEVERITY_ORDER.get(group[0].severity, 3))
 
 
 def _number(value: float) -> float | int:
