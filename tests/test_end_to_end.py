@@ -14,7 +14,7 @@ import pytest
 
 from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, THIRD_OCTAVES_100_3150_HZ, BandSpectrum
 from fieldtl.cli import main
-from fieldtl.rating import rate_iso717_1
+from fieldtl.rating import rate_iso717_1, rate_iso717_2
 
 BANDS = THIRD_OCTAVES_50_5000_HZ
 S_M2, V2_M3, V1_M3 = 11.0, 40.0, 52.0
@@ -74,3 +74,26 @@ def test_nothing_is_limited_and_the_verdict_is_stated(result):
     assert not any(result["limited"])
     assert result["verdict"]["result"] == "pass"
     assert "placeholder" in result["verdict"]["rule"]
+
+
+LI_TRUE = BandSpectrum(BANDS, tuple(62.0 - 0.4 * i for i in range(len(BANDS))), "dB", "Li")
+
+
+def test_impact_survey_gives_l_prime_n_and_l_prime_nt(tmp_path):
+    # ISO 16283-2: L'n = Li + 10 lg(A/A0), A0 = 10 m2; L'nT = Li - 10 lg(T/T0), T0 = 0.5 s (facts sheet 2).
+    survey = make_data.impact_survey(tmp_path, impact_db=LI_TRUE, background_db=B_TRUE, reverberation_s=T_TRUE,
+                                     receiving_volume_m3=V2_M3)
+    assert main(["assess", str(survey), "--json", str(tmp_path / "out.json")]) == 0
+    result = json.loads((tmp_path / "out.json").read_text())
+    assert set(result["bands"]) == {"Li", "B", "T", "L_prime_n", "L_prime_nT"}
+    t_s = T_TRUE.as_array()
+    expected = {"L_prime_n": LI_TRUE.as_array() + 10 * np.log10(0.16 * V2_M3 / t_s / 10.0),
+                "L_prime_nT": LI_TRUE.as_array() - 10 * np.log10(t_s / 0.5)}
+    required = [BANDS.index(f) for f in THIRD_OCTAVES_100_3150_HZ]
+    for quantity, values in expected.items():
+        measured = np.array(result["bands"][quantity], dtype=float)
+        assert np.abs(measured[required] - values[required]).max() < 0.5, quantity
+    truth = rate_iso717_2(BandSpectrum.from_array(BANDS, expected["L_prime_nT"], "dB", "L'nT"))
+    assert abs(result["ratings"]["L'nT,w"]["value_0.1dB"] - truth.single_number_precise_db) <= 0.5
+    assert result["verdict"]["requirement"] == "L'nT,w <= 62"
+    assert {"AIIC", "NISR"} <= set(result["ratings"])

@@ -60,54 +60,85 @@ if __name__ == "__main__":
     main(sys.argv[1] if len(sys.argv) > 1 else "tests/data/out")
 
 
-# --- a whole synthetic survey with a known truth (end-to-end tests) ---------------------------------
+# --- whole synthetic surveys with a known truth (end-to-end tests) ---------------------------------
+
+class SurveyWriter:
+    """Writes takes, decays and a calibrator tone into ``folder`` and the survey file naming them.
+
+    Levels are written with full scale = ``level_offset_db`` dB and a matching 94 dB calibrator tone.
+    """
+
+    def __init__(self, folder: Path, *, level_offset_db: float = 125.0, take_s: float = 8.0) -> None:
+        self.folder, self.level_offset_db, self.take_s = folder, level_offset_db, take_s
+        self.entries: list[str] = []
+
+    def noise(self, levels_db, *, seed: int) -> np.ndarray:
+        from fieldtl.audio.synthesis import noise_with_band_levels
+        return noise_with_band_levels(levels_db, duration_s=self.take_s, sample_rate_hz=SAMPLE_RATE_HZ, seed=seed,
+                                      level_offset_db=self.level_offset_db)
+
+    def take(self, name: str, samples: np.ndarray, role: str, speaker: int = 1, extra: str = "") -> None:
+        write(self.folder / name, samples, subtype="FLOAT")
+        self.entries.append(f'[[recording]]\nfile = "{name}"\nrole = "{role}"\nspeaker = {speaker}\n{extra}')
+
+    def decays(self, reverberation_s, *, count: int = 3) -> None:
+        from fieldtl.audio.synthesis import impulse_response_with_decay
+        for i in range(count):
+            ir = impulse_response_with_decay(reverberation_s, sample_rate_hz=SAMPLE_RATE_HZ, duration_s=2.0,
+                                             seed=700 + i, noise_floor_db=60.0)
+            self.take(f"ir_{i}.wav", ir, "decay", extra='method = "impulse"\n')
+
+    def finish(self, test_table: str) -> Path:
+        from fieldtl.audio.synthesis import calibrator_tone
+        write(self.folder / "cal.wav", calibrator_tone(level_dbfs=94.0 - self.level_offset_db, duration_s=4.0,
+                                                       sample_rate_hz=SAMPLE_RATE_HZ, seed=5), subtype="FLOAT")
+        survey = self.folder / "survey.toml"
+        survey.write_text(f'[test]\n{test_table}\n[calibration]\nfile = "cal.wav"\nreference_db = 94.0\n\n'
+                          + "\n".join(self.entries))
+        return survey
+
 
 def airborne_survey(folder: Path, *, reduction_db, source_db, background_db, reverberation_s,
                     area_m2: float, receiving_volume_m3: float, source_volume_m3: float,
-                    requirement: str = "DnT,w + Ctr >= 45", speakers: int = 2, microphones: int = 2,
-                    take_s: float = 8.0, level_offset_db: float = 125.0) -> Path:
+                    requirement: str = "DnT,w + Ctr >= 45", speakers: int = 2, microphones: int = 2) -> Path:
     """Recordings of an airborne test whose true R', L1, background and T are the given spectra.
 
     L2 = L1 - D with D = R' - 10 lg(S/A), A = 0.16 V/T (ISO 16283-1), written with the same noise
     seed as the source room: the receiving-room sound is the source sound filtered by the wall,
     as in a real transmission. Background noise (another seed) is added energetically.
-    Levels are written with full scale = ``level_offset_db`` dB and a matching calibrator tone.
     """
-    from fieldtl.audio.synthesis import calibrator_tone, impulse_response_with_decay, noise_with_band_levels
     from fieldtl.bands import BandSpectrum
 
+    writer = SurveyWriter(folder)
     bands = reduction_db.nominal_hz
     absorption_m2 = 0.16 * receiving_volume_m3 / reverberation_s.as_array()
     d_db = reduction_db.as_array() - 10 * np.log10(area_m2 / absorption_m2)
     l2 = BandSpectrum.from_array(bands, source_db.as_array() - d_db, "dB", "L2")
-    entries = []
-
-    def take(name: str, samples: np.ndarray, role: str, speaker: int = 1, extra: str = "") -> None:
-        write(folder / name, samples, subtype="FLOAT")
-        entries.append(f'[[recording]]\nfile = "{name}"\nrole = "{role}"\nspeaker = {speaker}\n{extra}')
-
     for speaker in range(1, speakers + 1):
         for mic in range(microphones):
             seed = 100 * speaker + mic
-            options = dict(duration_s=take_s, sample_rate_hz=SAMPLE_RATE_HZ, level_offset_db=level_offset_db)
-            source = noise_with_band_levels(source_db, seed=seed, **options)
-            receiving = noise_with_band_levels(l2, seed=seed, **options)
-            receiving += noise_with_band_levels(background_db, seed=seed + 50, **options)
-            take(f"src_{speaker}_{mic}.wav", source, "source", speaker)
-            take(f"rec_{speaker}_{mic}.wav", receiving, "receiving", speaker)
+            writer.take(f"src_{speaker}_{mic}.wav", writer.noise(source_db, seed=seed), "source", speaker)
+            receiving = writer.noise(l2, seed=seed) + writer.noise(background_db, seed=seed + 50)
+            writer.take(f"rec_{speaker}_{mic}.wav", receiving, "receiving", speaker)
     for i in range(2):
-        take(f"bg_{i}.wav", noise_with_band_levels(background_db, duration_s=take_s, sample_rate_hz=SAMPLE_RATE_HZ,
-                                                   seed=900 + i, level_offset_db=level_offset_db), "background")
-    for i in range(3):
-        ir = impulse_response_with_decay(reverberation_s, sample_rate_hz=SAMPLE_RATE_HZ, duration_s=2.0,
-                                         seed=700 + i, noise_floor_db=60.0)
-        take(f"ir_{i}.wav", ir, "decay", extra='method = "impulse"\n')
-    write(folder / "cal.wav", calibrator_tone(level_dbfs=94.0 - level_offset_db, duration_s=4.0,
-                                              sample_rate_hz=SAMPLE_RATE_HZ, seed=5), subtype="FLOAT")
-    survey = folder / "survey.toml"
-    survey.write_text(
-        f'[test]\ntitle = "Invented end-to-end check"\ntype = "airborne"\nseparating_area_m2 = {area_m2}\n'
-        f'receiving_volume_m3 = {receiving_volume_m3}\nsource_volume_m3 = {source_volume_m3}\n'
-        f'requirement = "{requirement}"\n\n[calibration]\nfile = "cal.wav"\nreference_db = 94.0\n\n'
-        + "\n".join(entries))
-    return survey
+        writer.take(f"bg_{i}.wav", writer.noise(background_db, seed=900 + i), "background")
+    writer.decays(reverberation_s)
+    return writer.finish(f'title = "Invented end-to-end check"\ntype = "airborne"\nseparating_area_m2 = {area_m2}\n'
+                         f'receiving_volume_m3 = {receiving_volume_m3}\nsource_volume_m3 = {source_volume_m3}\n'
+                         f'requirement = "{requirement}"\n')
+
+
+def impact_survey(folder: Path, *, impact_db, background_db, reverberation_s, receiving_volume_m3: float,
+                  requirement: str = "L'nT,w <= 62", tapping_positions: int = 4, microphones: int = 2) -> Path:
+    """Recordings of an impact test whose true Li (receiving-room level), background and T are given."""
+    writer = SurveyWriter(folder)
+    for position in range(1, tapping_positions + 1):
+        for mic in range(microphones):
+            seed = 100 * position + mic
+            level = writer.noise(impact_db, seed=seed) + writer.noise(background_db, seed=seed + 50)
+            writer.take(f"tap_{position}_{mic}.wav", level, "impact", position)
+    for i in range(2):
+        writer.take(f"bg_{i}.wav", writer.noise(background_db, seed=900 + i), "background")
+    writer.decays(reverberation_s)
+    return writer.finish(f'title = "Invented impact end-to-end check"\ntype = "impact"\n'
+                         f'receiving_volume_m3 = {receiving_volume_m3}\nrequirement = "{requirement}"\n')
