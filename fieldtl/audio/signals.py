@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 import soundfile
-from scipy import fft, signal
+from scipy import fft
 
 from fieldtl.errors import InputError
 
@@ -175,9 +175,12 @@ def impulse_response_from_sweep(recording: np.ndarray, played: SweepSpec | np.nd
                                 source_name: str = "sweep recording") -> np.ndarray:
     """The linear impulse response from a recording of a played exponential sweep.
 
-    ``played`` is either the :class:`SweepSpec` that generated the sweep (deconvolved with Farina's
-    inverse filter) or the sweep's own samples, without or with trailing silence (deconvolved by
-    regularised spectral division). The recording may start any time before the sweep does and
+    ``played`` is either the :class:`SweepSpec` that generated the sweep or the sweep's own
+    samples, without or with trailing silence. Both are deconvolved by regularised spectral
+    division, H = Y X* / (|X|² + ε), which is exact inside the sweep's band; Farina's inverse
+    filter (:func:`inverse_sweep`) leaves a low-level spread around the impulse that lengthens
+    or shortens long low-frequency decays by about 1 % (measured), so it is not used here.
+    The recording may start any time before the sweep does and
     must run on after it for at least the decay time. The result starts shortly before the
     linear response's peak; the harmonic-distortion responses, which land earlier by
     L·ln(n) (Farina 2000), are discarded. Its length is the part of the recording after the
@@ -191,9 +194,9 @@ def impulse_response_from_sweep(recording: np.ndarray, played: SweepSpec | np.nd
         if played.sample_rate_hz != sample_rate_hz:
             raise InputError(f"{source_name}: recorded at {sample_rate_hz:g} Hz but the sweep was made for "
                              f"{played.sample_rate_hz:g} Hz")
-        inverse = inverse_sweep(played)
-        sweep_samples = inverse.size
-        lags = _deconvolve_with_inverse(recorded, inverse)
+        sweep = exponential_sweep(played)
+        sweep_samples = sweep.size
+        lags = _deconvolve_by_division(recorded, sweep)
         lead_s = min(0.5 * played.harmonic_advance_s(2), IMPULSE_LEAD_S)
     else:
         reference = checked_audio(played, sample_rate_hz=sample_rate_hz, source_name="played sweep")
@@ -217,12 +220,6 @@ def impulse_response_from_sweep(recording: np.ndarray, played: SweepSpec | np.nd
         raise InputError(f"{source_name}: the recording ends {max(after_s, 0.0):.2f} s after the sweep; "
                          "keep recording at least as long as the decay (0.1 s minimum)")
     return lags[start:stop]
-
-
-def _deconvolve_with_inverse(recorded: np.ndarray, inverse: np.ndarray) -> np.ndarray:
-    """Lag k of the result is the response to a sweep that started at sample k of the recording."""
-    full = signal.fftconvolve(recorded, inverse)
-    return full[inverse.size - 1: inverse.size - 1 + recorded.size]
 
 
 def _deconvolve_by_division(recorded: np.ndarray, sweep: np.ndarray) -> np.ndarray:
