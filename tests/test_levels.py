@@ -218,7 +218,9 @@ def test_history_follows_a_level_step_second_by_second():
     assert history.start_s == pytest.approx([0, 1, 2, 3, 4])
     expected_db = [sine_level_db(0.1)] * 2 + [sine_level_db(0.2)] * 3
     assert history.laeq_db == pytest.approx(expected_db, abs=0.02)
-    assert history.band_leq_db[:, result.band_leq.nominal_hz.index(1000.0)] == pytest.approx(expected_db, abs=0.02)
+    # the band's group delay (about 6 ms at 1 kHz, through guard and anti-alias filters) holds back
+    # 0.75 x 6 ms of the step's extra energy from the 2-3 s row: -0.02 dB there
+    assert history.band_leq_db[:, result.band_leq.nominal_hz.index(1000.0)] == pytest.approx(expected_db, abs=0.03)
     # energy bookkeeping: rows weighted by their averaging time give the overall LAeq
     # (row 0 loses the 0.1 s weighting start-up, the last row is 0.5 s)
     seconds = np.array([1 - levels.WEIGHTING_SETTLE_S, 1, 1, 1, 0.5])
@@ -259,7 +261,7 @@ def test_bad_blocks_and_samples_are_refused_naming_the_file():
 
 def test_band_the_rate_cannot_hold_is_refused_naming_the_file():
     with pytest.raises(InputError, match=r"^d\.wav: 10000 Hz band needs a sample rate of at least"):
-        analyse_levels([np.zeros(64_000)], sample_rate_hz=32_000.0, band_range_hz=(50.0, 10_000.0),
+        analyse_levels([np.zeros(64_000)], sample_rate_hz=24_000.0, band_range_hz=(50.0, 10_000.0),
                        source_name="d.wav")
 
 
