@@ -1,12 +1,13 @@
 """Reverberation time from impulse responses, sweeps and interrupted noise.
 
 Synthetic decays with a known T. Noise-like decays carry their own random scatter (ISO 3382-2
-puts it at several per cent in low one-third octaves), so the accuracy tests use modal decays
+puts it at several per cent in low one-third octaves, from memory), so the accuracy tests use modal decays
 instead: one decaying cosine exp(-3 ln10 t / T) cos(2π fm t) at the exact mid-band frequency of
 every other band. Each band then holds a single exact exponential (60 dB in T by definition,
 ISO 3382-2), with its neighbours empty so that no two modes beat inside one filter.
 """
 
+import functools
 import math
 
 import numpy as np
@@ -28,6 +29,7 @@ BANDS_100_5000 = nominal_bands_hz(100, 5000)
 MODE_BANDS = nominal_bands_hz(63, 8000)     # the tested bands plus their outer neighbours
 
 
+@functools.lru_cache(maxsize=None)
 def _reversed_filter_gain(nominal_hz, t_s):
     """RMS gain of the time-reversed band filter on a decaying cosine at mid-band (not 1 for short T)."""
     time_s = np.arange(round(0.2 * FS)) / FS
@@ -37,14 +39,9 @@ def _reversed_filter_gain(nominal_hz, t_s):
     return math.sqrt(np.mean(filtered[window] ** 2) / np.mean(mode[window] ** 2))
 
 
-def modal_impulse_response(t_s, *, odd_bands, noise_below_db=None, seed=0, length_s=None, onset_s=0.01):
-    """Modes in every other band of 63-8000 Hz; white noise ``noise_below_db`` under each band's start.
-
-    Amplitudes ∝ √(bandwidth) / filter gain, so with white noise (band power ∝ bandwidth) every
-    band starts the same number of dB above its noise.
-    """
-    if length_s is None:
-        length_s = 2.0 * t_s * (noise_below_db or 60.0) / 60.0 + 0.5
+@functools.lru_cache(maxsize=8)
+def _modes(t_s, odd_bands, length_s, onset_s):
+    """Modes in every other band of 63-8000 Hz, amplitudes ∝ √(bandwidth) / filter gain."""
     time_s = np.arange(round(length_s * FS)) / FS
     response = np.zeros(time_s.size)
     for nominal_hz in MODE_BANDS[int(odd_bands)::2]:
@@ -53,11 +50,23 @@ def modal_impulse_response(t_s, *, odd_bands, noise_below_db=None, seed=0, lengt
         response += amplitude * np.cos(2 * np.pi * exact_centre_hz(nominal_hz) * time_s)
     response *= np.exp(-AMPLITUDE_RATE * time_s / t_s)
     response = np.concatenate([np.zeros(round(onset_s * FS)), response])
-    if noise_below_db is not None:
-        # Band mean square: (B / 2) for the mode; σ² 2B / fs for white noise of variance σ².
-        sigma = math.sqrt(FS / 4 * 10 ** (-noise_below_db / 10))
-        response += sigma * np.random.default_rng(seed).standard_normal(response.size)
+    response.flags.writeable = False
     return response
+
+
+def modal_impulse_response(t_s, *, odd_bands, noise_below_db=None, seed=0, length_s=None, onset_s=0.01):
+    """The modes of :func:`_modes`, with white noise ``noise_below_db`` under each band's start.
+
+    With white noise (band power ∝ bandwidth) every band then starts the same number of dB above
+    its noise: the mode's band mean square is B / 2, white noise of variance σ² gives σ² 2B / fs.
+    """
+    if length_s is None:
+        length_s = 2.0 * t_s * (noise_below_db or 60.0) / 60.0 + 0.5
+    response = _modes(t_s, bool(odd_bands), length_s, onset_s)
+    if noise_below_db is None:
+        return response.copy()
+    sigma = math.sqrt(FS / 4 * 10 ** (-noise_below_db / 10))
+    return response + sigma * np.random.default_rng(seed).standard_normal(response.size)
 
 
 def _tested_bands(odd_bands):
@@ -229,11 +238,23 @@ def _resonator_room(t_s, excitation, odd_bands):
 
 
 def interrupted_noise_recording(t_s, *, odd_bands, interruptions=4, seed=0, noise_below_db=60.0):
+    """Gated white noise through the resonators, plus 10-20 kHz direct sound and background noise.
+
+    The resonators' sum has the slow, deep level fluctuations of a few narrowband processes,
+    which a real room's broadband field (hundreds of modes) does not have. The gated 10-20 kHz
+    noise, 20 dB above it and outside the analysed bands, gives the recording the steady
+    broadband envelope of a real one, so the switch-offs are found as they would be on site.
+    """
     on_s, off_s = max(1.5, 2 * t_s), max(1.0, 1.5 * t_s)
     gate = np.tile(np.concatenate([np.ones(round(on_s * FS)), np.zeros(round(off_s * FS))]), interruptions)
     rng = np.random.default_rng(seed)
     room = _resonator_room(t_s, rng.standard_normal(gate.size) * gate, odd_bands)
-    return room + math.sqrt(FS / 2 * 10 ** (-noise_below_db / 10)) * rng.standard_normal(room.size)
+    steady_power = np.mean(room[gate > 0] ** 2)
+    direct = white_noise(gate.size / FS, sample_rate_hz=FS, low_hz=10_000.0, high_hz=20_000.0, seed=seed + 1,
+                         level_db_fs=-20.0)
+    direct *= math.sqrt(100 * steady_power) / np.sqrt(np.mean(direct ** 2)) * gate
+    background = math.sqrt(FS / 2 * 10 ** (-noise_below_db / 10)) * rng.standard_normal(room.size)
+    return room + direct + background
 
 
 @pytest.mark.parametrize("t_s", [0.3, 0.5, 1.0, 2.0])

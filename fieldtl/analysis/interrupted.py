@@ -72,18 +72,18 @@ def find_interruptions(samples: np.ndarray, *, sample_rate_hz: float) -> tuple[I
         if not is_on or b - a < MIN_ON_S * sample_rate_hz or off_end - b < MIN_OFF_S * sample_rate_hz:
             continue
         steady_db = float(np.median(envelope_db[a + (b - a) // 2: b]))
-        found.append(Interruption(on_start=a, switch_off=_switch_off(envelope_db, a, b, off_end, steady_db,
-                                                                     sample_rate_hz), off_end=off_end))
+        found.append(Interruption(on_start=a, switch_off=_switch_off(envelope_db, a, b, off_end, steady_db),
+                                  off_end=off_end))
     return tuple(found)
 
 
-def _switch_off(envelope_db: np.ndarray, on_start: int, on_end: int, off_end: int, steady_db: float,
-                sample_rate_hz: float) -> int:
+def _switch_off(envelope_db: np.ndarray, on_start: int, on_end: int, off_end: int, steady_db: float) -> int:
     """Where the early decay, extrapolated back as a straight line, meets the steady level.
 
     The line is fitted to the envelope from its last point above steady - 5 dB to the first
-    point below steady - 15 dB; robust to the envelope's own fluctuation and to the rounded
-    knee a smoothing window leaves at the switch-off.
+    point below steady - 15 dB; robust to the rounded knee a smoothing window leaves at the
+    switch-off. Its accuracy is the steady level's: an excitation ending 1 dB off its median
+    moves the estimate by 1 dB of decay (T/60 s).
     """
     above = np.flatnonzero(envelope_db[on_start:on_end] >= steady_db - SWITCH_OFF_FIT_DB[0])
     top = on_start + int(above[-1]) if above.size else on_start
@@ -115,12 +115,13 @@ def reverberation_from_interrupted_noise(
     """EDT, T20, T30 per band from a recording of one or more noise interruptions.
 
     Several interruptions are ensemble-averaged (ISO 3382-2, from memory): each decay is
-    divided by the mean energy of the second half of its excitation, the average runs over the
-    shortest decay period, and 0 dB is the averaged level in the smoothing window just before
-    the switch-off. The dynamic range is that initial level over the background (the last 20 %
-    of each silence). Leave at least the decay time of silence after each switch-off. Does not
-    check that the excitation was broadband or long enough for the room to reach steady state,
-    and gives no EDT (see :func:`fieldtl.analysis.decay.evaluate_curve`).
+    divided by its steady state (the mean band energy of the second half of its excitation),
+    the average runs over the shortest decay period, and 0 dB is the averaged level in the
+    smoothing window just before the switch-off (a single decay starts from wherever the
+    fluctuating noise left it). The dynamic range is that initial level over the background
+    (the last 20 % of each silence). Leave at least the decay time of silence after each
+    switch-off. Does not check that the excitation was broadband or long enough for the room to
+    reach steady state, and gives no EDT (see :func:`fieldtl.analysis.decay.evaluate_curve`).
     """
     samples = checked_audio(recording, sample_rate_hz=sample_rate_hz, source_name=source_name,
                             min_duration_s=MIN_RECORDING_S)
@@ -166,7 +167,8 @@ def _band_decay(samples: np.ndarray, nominal_hz: float, interruptions: tuple[Int
         return band_without_decay(nominal_hz, fraction, None, (_short_off_finding(source_name, nominal_hz),),
                                   bt_limit=BT_MIN_FORWARD)
     length = min(d.size for d in decays)
-    # Ensemble average, then 0 dB = the averaged level at the switch-off: the decay's initial level.
+    # Ensemble average; 0 dB is the averaged level just before the switch-off, the decay's initial
+    # level, from which the evaluation ranges count (ISO 3382-2, from memory).
     initial = float(np.mean(initials))
     mean_decay = np.mean([d[:length] for d in decays], axis=0) / initial
     noise = max(float(np.mean(noises)) / initial, np.finfo(float).tiny)
