@@ -135,11 +135,16 @@ def shortest_usable_s(bank: FilterBank) -> float:
 
 def _require_length(frames: int, sample_rate_hz: float, shortest_s: float, source_name: str,
                     bank: FilterBank) -> None:
-    if frames / sample_rate_hz < shortest_s:
-        lowest = bank.bands[0]
-        raise InputError(f"{source_name}: {frames / sample_rate_hz:.3f} s is too short; the "
-                         f"{lowest.nominal_hz:g} Hz {fraction_name(bank.fraction)} band needs at least "
-                         f"{shortest_s:.3f} s (start-up transient {lowest.settle_s:.3f} s discarded)")
+    if frames / sample_rate_hz >= shortest_s:
+        return
+    lowest = bank.bands[0]
+    if lowest.settle_s + MIN_BAND_AVERAGING_BANDWIDTHS / lowest.bandwidth_hz >= shortest_s:
+        reason = (f"the {lowest.nominal_hz:g} Hz {fraction_name(bank.fraction)} band discards its first "
+                  f"{lowest.settle_s:.3f} s as start-up transient")
+    else:
+        reason = f"the A and C weighting filters discard their first {WEIGHTING_SETTLE_S:.3f} s"
+    raise InputError(f"{source_name}: {frames / sample_rate_hz:.3f} s is too short; at least {shortest_s:.3f} s "
+                     f"is needed ({reason})")
 
 
 def _chunks(blocks: Iterable[np.ndarray], source_name: str) -> Iterator[np.ndarray]:
