@@ -1,0 +1,287 @@
+"""The declared construction: leaves of bonded layers, an optional cavity, and its TOML file.
+
+Construction file (our own format; thicknesses in mm, materials by name from
+:data:`fieldtl.construction.materials.MATERIALS` or from [[material]] tables in the file)::
+
+    name = "2 x 12.5 mm gypsum board each side, independent frames, 75 mm cavity, mineral wool"
+    area_m2 = 10.8                          # optional, carried into the output only
+
+    [[material]]                            # optional: materials of your own (new names only)
+    name = "block_brand_x"
+    density_kg_m3 = 1350
+    youngs_modulus_gpa = 6.0
+    poisson_ratio = 0.2
+    loss_factor = 0.012
+    source = "manufacturer data sheet"      # optional
+
+    [[leaf]]                                # one leaf: a single wall or floor of bonded layers
+    layers = ["gypsum_board:12.5", "gypsum_board:12.5"]
+
+    [[leaf]]                                # a second leaf makes a double wall: [cavity] required
+    layers = ["gypsum_board:12.5", "gypsum_board:12.5"]
+
+    [cavity]
+    depth_mm = 75
+    fill = "full"                           # "none" | "partial" | "full" (porous absorbent)
+    studs = "independent"                   # "independent" | "timber" | "steel" | "none"
+    stud_spacing_mm = 600                   # timber studs only; default 600
+
+Each layer is "MATERIAL:THICKNESS_MM". Every problem raises InputError with one line naming the
+file (or the layer text) and what is wrong. The reader does not judge whether a construction is
+buildable or whether the materials suit it.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Literal
+
+from fieldtl.construction.materials import Material, bending_stiffness_nm, critical_frequency_hz, material_table
+from fieldtl.errors import InputError
+
+Fill = Literal["none", "partial", "full"]
+Studs = Literal["independent", "timber", "steel", "none"]
+FILLS: tuple[str, ...] = ("none", "partial", "full")
+STUDS: tuple[str, ...] = ("independent", "timber", "steel", "none")
+DEFAULT_STUD_SPACING_MM = 600.0  # common stud/joist centres (common practice)
+
+_TOP_KEYS = {"name", "area_m2", "material", "leaf", "cavity"}
+_MATERIAL_KEYS = {"name", "density_kg_m3", "youngs_modulus_gpa", "poisson_ratio", "loss_factor", "source"}
+_LEAF_KEYS = {"layers"}
+_CAVITY_KEYS = {"depth_mm", "fill", "studs", "stud_spacing_mm"}
+
+
+@dataclass(frozen=True, slots=True)
+class Layer:
+    material: Material
+    thickness_mm: float
+
+    def __post_init__(self) -> None:
+        if not (math.isfinite(self.thickness_mm) and self.thickness_mm > 0):
+            raise InputError(f"layer {self.material.name}: thickness must be a positive number of mm, "
+                             f"got {self.thickness_mm!r}")
+
+    @property
+    def surface_mass_kg_m2(self) -> float:
+        return self.material.density_kg_m3 * self.thickness_mm / 1000.0
+
+
+@dataclass(frozen=True, slots=True)
+class Leaf:
+    """One or more layers bonded together that bend as one panel.
+
+    Simplification (stated, common practice for screwed or glued board layers): masses add and
+    bending stiffnesses add, B = Σ B_i, as if each layer bent about its own neutral axis with no
+    shear connection. This is the lower bound of the stiffness; two equal boards then keep the fc
+    of one board. The loss factor is the mass-weighted mean of the layers'.
+    """
+
+    layers: tuple[Layer, ...]
+
+    def __post_init__(self) -> None:
+        if not self.layers:
+            raise InputError("leaf: needs at least one layer")
+
+    @property
+    def surface_mass_kg_m2(self) -> float:
+        return sum(layer.surface_mass_kg_m2 for layer in self.layers)
+
+    @property
+    def bending_stiffness_nm(self) -> float:
+        return sum(bending_stiffness_nm(layer.material, layer.thickness_mm / 1000.0) for layer in self.layers)
+
+    @property
+    def loss_factor(self) -> float:
+        return sum(layer.surface_mass_kg_m2 * layer.material.loss_factor for layer in self.layers) \
+            / self.surface_mass_kg_m2
+
+    @property
+    def critical_frequency_hz(self) -> float:
+        return critical_frequency_hz(self.surface_mass_kg_m2, self.bending_stiffness_nm)
+
+    def describe(self) -> str:
+        return " + ".join(f"{layer.material.name}:{layer.thickness_mm:g}" for layer in self.layers)
+
+
+@dataclass(frozen=True, slots=True)
+class Cavity:
+    depth_mm: float
+    fill: Fill
+    studs: Studs
+    stud_spacing_mm: float = DEFAULT_STUD_SPACING_MM
+
+    def __post_init__(self) -> None:
+        if self.fill not in FILLS or self.studs not in STUDS:
+            raise InputError(f"cavity: fill must be one of {', '.join(FILLS)} and studs one of "
+                             f"{', '.join(STUDS)}, got {self.fill!r} and {self.studs!r}")
+        for label, value in (("depth_mm", self.depth_mm), ("stud_spacing_mm", self.stud_spacing_mm)):
+            if not (math.isfinite(value) and value > 0):
+                raise InputError(f"cavity: {label} must be a positive number, got {value!r}")
+
+
+@dataclass(frozen=True, slots=True)
+class Construction:
+    """A single leaf (``cavity`` None) or two leaves and the cavity between them."""
+
+    name: str
+    leaves: tuple[Leaf, ...]
+    cavity: Cavity | None = None
+    area_m2: float | None = None
+
+    def __post_init__(self) -> None:
+        if len(self.leaves) not in (1, 2):
+            raise InputError(f"construction {self.name!r}: one or two leaves, got {len(self.leaves)}")
+        if (len(self.leaves) == 2) != (self.cavity is not None):
+            raise InputError(f"construction {self.name!r}: a cavity goes with two leaves, and only with two")
+
+
+def parse_layer(text: str, materials: Mapping[str, Material]) -> Layer:
+    """"MATERIAL:THICKNESS_MM" → Layer; InputError naming the text if it is not that."""
+    name, sep, thickness = str(text).partition(":")
+    name = name.strip()
+    if not sep:
+        raise InputError(f"layer {text!r}: expected MATERIAL:THICKNESS_MM, e.g. \"gypsum_board:12.5\"")
+    if name not in materials:
+        raise InputError(f"layer {text!r}: unknown material {name!r} (known: {', '.join(sorted(materials))})")
+    try:
+        thickness_mm = float(thickness)
+    except ValueError:
+        raise InputError(f"layer {text!r}: thickness {thickness.strip()!r} is not a number of mm") from None
+    if not (math.isfinite(thickness_mm) and thickness_mm > 0):
+        raise InputError(f"layer {text!r}: thickness must be a positive number of mm")
+    return Layer(materials[name], thickness_mm)
+
+
+def construction_from_layers(layers: Sequence[str], *, name: str | None = None, area_m2: float | None = None,
+                             extra_materials: Mapping[str, Material] | None = None) -> Construction:
+    """A single leaf of bonded layers from texts like ["concrete_dense:100", "plaster_gypsum:13"]."""
+    if not layers:
+        raise InputError("construction: give at least one layer as MATERIAL:THICKNESS_MM")
+    if area_m2 is not None and not (math.isfinite(area_m2) and area_m2 > 0):
+        raise InputError(f"construction: area {area_m2!r} m2 must be a positive number")
+    materials = material_table(extra_materials)
+    leaf = Leaf(tuple(parse_layer(text, materials) for text in layers))
+    return Construction(name or leaf.describe(), (leaf,), None, area_m2)
+
+
+def load_construction(path: str | Path) -> Construction:
+    """Read and validate a construction file (format in the module docstring)."""
+    file = Path(path)
+    name = file.name
+    if not file.is_file():
+        raise InputError(f"{name}: construction file not found ({file})")
+    try:
+        data = tomllib.loads(file.read_text(encoding="utf-8"))
+    except UnicodeDecodeError:
+        raise InputError(f"{name}: not a text file") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{name}: not valid TOML ({exc})") from None
+    return construction_from_dict(data, source_name=name)
+
+
+def construction_from_dict(data: Mapping[str, Any], *, source_name: str) -> Construction:
+    """Validate parsed construction data (from TOML or the app) into a Construction."""
+    _only_keys(data, _TOP_KEYS, "the top level", source_name)
+    materials = material_table(_own_materials(data.get("material", []), source_name))
+    leaves_data = data.get("leaf")
+    if not isinstance(leaves_data, list) or len(leaves_data) not in (1, 2):
+        raise InputError(f"{source_name}: needs one or two [[leaf]] tables")
+    leaves = tuple(_leaf(entry, i + 1, materials, source_name) for i, entry in enumerate(leaves_data))
+    cavity_data = data.get("cavity")
+    if len(leaves) == 2 and cavity_data is None:
+        raise InputError(f"{source_name}: two leaves need a [cavity] table (depth_mm, fill, studs)")
+    if len(leaves) == 1 and cavity_data is not None:
+        raise InputError(f"{source_name}: [cavity] needs a second [[leaf]]")
+    cavity = None if cavity_data is None else _cavity(cavity_data, source_name)
+    area_m2 = _optional_number(data, "area_m2", "the top level", source_name)
+    title = data.get("name", "")
+    if not isinstance(title, str):
+        raise InputError(f"{source_name}: name must be text")
+    return Construction(title or " | ".join(leaf.describe() for leaf in leaves), leaves, cavity, area_m2)
+
+
+def _own_materials(entries: Any, source_name: str) -> dict[str, Material]:
+    if not isinstance(entries, list):
+        raise InputError(f"{source_name}: [[material]] must be an array of tables")
+    own: dict[str, Material] = {}
+    for i, entry in enumerate(entries, start=1):
+        where = f"[[material]] {i}"
+        if not isinstance(entry, dict):
+            raise InputError(f"{source_name}: {where} must be a table")
+        _only_keys(entry, _MATERIAL_KEYS, where, source_name)
+        name = entry.get("name")
+        if not isinstance(name, str) or not name or ":" in name:
+            raise InputError(f"{source_name}: {where} needs a name without ':'")
+        if name in own:
+            raise InputError(f"{source_name}: {where}: material {name!r} is defined twice")
+        numbers = {key: _required_number(entry, key, where, source_name)
+                   for key in ("density_kg_m3", "youngs_modulus_gpa", "poisson_ratio", "loss_factor")}
+        try:
+            own[name] = Material(name, numbers["density_kg_m3"], numbers["youngs_modulus_gpa"] * 1e9,
+                                 numbers["poisson_ratio"], numbers["loss_factor"],
+                                 str(entry.get("source", f"from {source_name}")))
+        except InputError as exc:
+            raise InputError(f"{source_name}: {where}: {exc}") from None
+    try:
+        material_table(own)
+    except InputError as exc:
+        raise InputError(f"{source_name}: {exc}") from None
+    return own
+
+
+def _leaf(entry: Any, number: int, materials: Mapping[str, Material], source_name: str) -> Leaf:
+    where = f"[[leaf]] {number}"
+    if not isinstance(entry, dict):
+        raise InputError(f"{source_name}: {where} must be a table")
+    _only_keys(entry, _LEAF_KEYS, where, source_name)
+    layers = entry.get("layers")
+    if not isinstance(layers, list) or not layers:
+        raise InputError(f"{source_name}: {where} needs layers = [\"MATERIAL:THICKNESS_MM\", ...]")
+    try:
+        return Leaf(tuple(parse_layer(text, materials) for text in layers))
+    except InputError as exc:
+        raise InputError(f"{source_name}: {where}: {exc}") from None
+
+
+def _cavity(entry: Any, source_name: str) -> Cavity:
+    if not isinstance(entry, dict):
+        raise InputError(f"{source_name}: [cavity] must be a table")
+    _only_keys(entry, _CAVITY_KEYS, "[cavity]", source_name)
+    depth_mm = _required_number(entry, "depth_mm", "[cavity]", source_name)
+    fill = entry.get("fill", "none")
+    if fill not in FILLS:
+        raise InputError(f"{source_name}: [cavity] fill must be one of {', '.join(FILLS)}, got {fill!r}")
+    studs = entry.get("studs")
+    if studs not in STUDS:
+        raise InputError(f"{source_name}: [cavity] studs must be one of {', '.join(STUDS)}, got {studs!r}")
+    if "stud_spacing_mm" in entry and studs != "timber":
+        raise InputError(f"{source_name}: [cavity] stud_spacing_mm applies to timber studs only")
+    spacing_mm = _optional_number(entry, "stud_spacing_mm", "[cavity]", source_name)
+    return Cavity(depth_mm, fill, studs, DEFAULT_STUD_SPACING_MM if spacing_mm is None else spacing_mm)
+
+
+def _required_number(table: Mapping[str, Any], key: str, where: str, source_name: str) -> float:
+    """A positive finite number (the Poisson ratio may be zero)."""
+    if key not in table:
+        raise InputError(f"{source_name}: {where} {key} is required")
+    value = table[key]
+    if isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
+        raise InputError(f"{source_name}: {where} {key} must be a number, got {value!r}")
+    if value < 0 or (value == 0 and key != "poisson_ratio"):
+        raise InputError(f"{source_name}: {where} {key} must be positive, got {value!r}")
+    return float(value)
+
+
+def _optional_number(table: Mapping[str, Any], key: str, where: str, source_name: str) -> float | None:
+    return _required_number(table, key, where, source_name) if key in table else None
+
+
+def _only_keys(table: Mapping[str, Any], allowed: set[str], where: str, source_name: str) -> None:
+    unknown = sorted(set(table) - allowed)
+    if unknown:
+        raise InputError(f"{source_name}: unknown key {unknown[0]!r} in {where} "
+                         f"(allowed: {', '.join(sorted(allowed))})")
