@@ -39,8 +39,8 @@ DEFAULT_ORDER = 3  # Butterworth prototype order N (band-pass order 2N); N >= 3 
 EDGE_FRACTION: dict[int, float] = {3: 0.38, 1: 0.24}
 # Guard of one-third-octave bands: a 6th-order Butterworth high-pass at GUARD_CENTRE_RATIO * fm.
 # Without it the 6th-order band-pass misses the x = -3 limit (60 dB) by about 5 dB at
-# f2 / r = 0.38; the guard adds 32 dB there, 0.04 dB at the lower band edge and takes 0.002 dB
-# off the noise bandwidth (computed).
+# f2 / r = 0.38; the guard adds 32 dB there, less than 0.02 dB at the lower band edge (relative to
+# fm) and takes 0.002 dB off the noise bandwidth (computed).
 GUARD_ORDER = 6
 GUARD_CENTRE_RATIO = 0.6
 # The anti-alias low-pass before each decimation passes up to the largest EDGE_FRACTION of the
