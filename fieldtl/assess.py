@@ -12,6 +12,8 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 from fieldtl.bands import BandSpectrum
+from fieldtl.construction import Comparison, compare_with_measurement
+from fieldtl.construction.predict import predict
 from fieldtl.errors import InputError
 from fieldtl.findings import Finding
 from fieldtl.insulation import (AirborneMeasurement, AirborneResult, ImpactMeasurement, ImpactResult,
@@ -67,6 +69,8 @@ class Assessment:
     cautions: tuple[str, ...] = CAUTIONS
     table_uncertainty_db: dict[str, float] = field(default_factory=dict, hash=False)
     uncertainty_note: str = ""
+    construction_check: Comparison | None = None   # declared build-up predicted and compared with R'
+
 
     def rating(self, descriptor: str) -> Rating | None:
         """The rating with this descriptor ("DnT,w", "NNIC" ...), or None if it was not computed."""
@@ -109,6 +113,9 @@ def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
     found += rating_findings
     field_r = next((r.single_number_db for r in ratings if r.descriptor == "R'w"), None)
     found += check_against_lab_rating(field_rating_db=field_r, lab_rating_db=survey.element_lab_rw_db)
+    check = _construction_check(survey, result)
+    if check is not None:
+        found += check.findings
     table_u = {r.descriptor: table_uncertainty(r.descriptor, situation=survey.uncertainty_situation)
                for r in ratings}
     verdict, combined, verdict_findings = _verdict(survey, result, rated, options)
@@ -120,7 +127,16 @@ def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
                       uncertainty=combined, findings=tuple(found), takes=tuple(takes),
                       rules_applied=result.rules_applied,
                       table_uncertainty_db={d: u.standard_uncertainty_db for d, u in table_u.items()},
-                      uncertainty_note=note)
+                      uncertainty_note=note, construction_check=check)
+
+
+def _construction_check(survey: Survey, result: AirborneResult | ImpactResult) -> Comparison | None:
+    """Predicted R of the declared construction beside the measured R' (airborne tests with S only)."""
+    if survey.declared_construction is None or not isinstance(result, AirborneResult) \
+            or result.apparent_sound_reduction_index_db is None:
+        return None
+    return compare_with_measurement(predict(survey.declared_construction),
+                                    result.apparent_sound_reduction_index_db, limited=result.limited)
 
 
 def _levels(takes: Sequence[TakeSummary], role: str, speaker: int | None = None) -> tuple[BandSpectrum, ...]:

@@ -91,6 +91,13 @@ def _parser() -> argparse.ArgumentParser:
     signal_cmd.add_argument("--seed", type=int, help="noise seed, for a reproducible file")
     signal_cmd.set_defaults(run=_run_signal)
 
+    predict = sub.add_parser("predict", help="predicted sound reduction R of a declared wall or floor")
+    predict.add_argument("construction", type=Path, nargs="?", metavar="CONSTRUCTION.toml")
+    predict.add_argument("--layer", action="append", default=[], metavar="MATERIAL:THICKNESS_MM",
+                         help="a layer of a single leaf (repeat for layers bonded together)")
+    predict.add_argument("--json", type=Path, metavar="OUT", help="write the prediction as JSON")
+    predict.set_defaults(run=_run_predict)
+
     demo = sub.add_parser("demo", help="assess the invented demo survey in sample_audio/")
     demo.add_argument("--out", type=Path, help="folder for demo JSON, CSV and chart (default: print only)")
     demo.set_defaults(run=_run_demo)
@@ -214,6 +221,35 @@ def _run_demo(args: argparse.Namespace) -> int:
         out.mkdir(parents=True, exist_ok=True)
     return _assess_and_report(load_survey(survey_path), json_path=out / "demo.json" if out else None,
                               csv_path=out / "demo.csv" if out else None, plot_path=out / "demo.png" if out else None)
+
+
+# --- construction prediction ------------------------------------------------------------------------
+
+def _run_predict(args: argparse.Namespace) -> int:
+    from fieldtl.construction import construction_from_layers, load_construction, prediction_to_json
+    from fieldtl.construction.predict import predict
+
+    if (args.construction is None) == (not args.layer):
+        raise InputError("predict: give either a construction file or one or more --layer MATERIAL:THICKNESS_MM")
+    construction = load_construction(args.construction) if args.construction else construction_from_layers(args.layer)
+    prediction = predict(construction)
+    rating = prediction.rating
+    print(f"{construction.name}: {prediction.method}")
+    print(f"surface mass {prediction.surface_mass_kg_m2:.1f} kg/m2, critical frequency "
+          f"{prediction.critical_frequency_hz:.0f} Hz"
+          + (f", mass-air-mass resonance {prediction.mass_air_mass_resonance_hz:.0f} Hz"
+             if prediction.mass_air_mass_resonance_hz else ""))
+    print(f"{'band Hz':>8}  {'R dB':>6}")
+    for frequency_hz, value in zip(prediction.r_db.nominal_hz, prediction.r_db.values):
+        print(f"{frequency_hz:>8g}  {'-' if value is None else f'{value:.1f}':>6}")
+    terms = rating.adaptation_terms_db
+    print(f"Rw {rating.single_number_db} dB (C {terms['C']:+d}; Ctr {terms['Ctr']:+d})"
+          + ("  — an upper bound: see the notes" if prediction.upper_bound else ""))
+    for note in prediction.notes:
+        print(f"note: {note}")
+    if args.json:
+        _write_json(args.json, prediction_to_json(prediction))
+    return 0
 
 
 # --- test signals -------------------------------------------------------------------------------------

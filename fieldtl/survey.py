@@ -11,6 +11,7 @@ Survey file, paths relative to the file::
     requirement = "DnT,w + Ctr >= 45" # optional
     construction = "..."              # optional description of the separating element
     element_lab_rw_db = 55            # optional: the element's laboratory Rw, for a plausibility check
+    construction_file = "wall.toml"   # optional: declared build-up (fieldtl.construction format)
     band_levels = "slm.csv"           # optional: band levels instead of recordings
 
     [calibration]                     # optional; without it levels are dB re full scale
@@ -40,6 +41,7 @@ from pathlib import Path
 from typing import Any, Literal
 
 from fieldtl.bands import BandSpectrum, nominal_bands_hz
+from fieldtl.construction import Construction, load_construction
 from fieldtl.errors import InputError
 from fieldtl.uncertainty import parse_requirement
 
@@ -58,7 +60,7 @@ ROLES_BY_TYPE: dict[str, tuple[str, ...]] = {
 
 _TEST_KEYS = {"title", "type", "separating_area_m2", "receiving_volume_m3", "source_volume_m3",
               "requirement", "band_levels", "construction", "uncertainty_situation",
-              "element_lab_rw_db"}
+              "element_lab_rw_db", "construction_file"}
 _CALIBRATION_KEYS = {"file", "reference_db", "file_after", "channel"}
 _RECORDING_KEYS = {"file", "role", "speaker", "method", "channel", "sweep_start_hz", "sweep_stop_hz",
                    "sweep_length_s"}
@@ -118,6 +120,7 @@ class Survey:
     construction: str | None = None
     uncertainty_situation: str = "B"
     element_lab_rw_db: float | None = None
+    declared_construction: Construction | None = None
 
 
 def load_survey(path: str | Path) -> Survey:
@@ -159,6 +162,10 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
             parse_requirement(requirement)
         except InputError as exc:
             raise InputError(f"{source_name}: [test] {exc}") from None
+    declared = None
+    if "construction_file" in test:
+        declared = load_construction(_existing(base_dir, test["construction_file"], "[test] construction_file",
+                                               source_name))
     calibration = _calibration(data.get("calibration"), base_dir, source_name)
     recordings = data.get("recording", [])
     if not isinstance(recordings, list):
@@ -177,7 +184,8 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
                   source_name=source_name, takes=takes, band_columns=band_columns, calibration=calibration,
                   requirement=requirement, construction=test.get("construction"),
                   uncertainty_situation=situation,
-                  element_lab_rw_db=_positive(test, "element_lab_rw_db", source_name, required=False))
+                  element_lab_rw_db=_positive(test, "element_lab_rw_db", source_name, required=False),
+                  declared_construction=declared)
 
 
 _COLUMN = re.compile(r"^(?P<kind>L1|L2|Li|B|T|L1c|L2c)(?:_s(?P<speaker>\d+))?(?:_(?P<label>[A-Za-z0-9]+))?$")

@@ -62,6 +62,13 @@ TITLE = ("INVENTED DEMO: Brackenfold House (a fictional building), flat 2 living
 CONSTRUCTION = ("Invented: 215 mm dense concrete blockwork, 13 mm plaster both sides, about 440 kg/m2; "
                 "flanking through a continuous lightweight inner leaf")
 REQUIREMENT = "DnT,w + Ctr >= 45"  # an example requirement, not a claim about any regulation
+# The declared build-up in fieldtl's construction format, for the construction check (invented).
+WALL_TOML = """# INVENTED demo wall (sample_audio/make_demo.py): the declared build-up of the separating wall.
+name = "Invented: 215 mm dense concrete blockwork, 13 mm gypsum plaster both sides"
+
+[[leaf]]
+layers = ["plaster_gypsum:13", "concrete_block_dense:215", "plaster_gypsum:13"]
+"""
 SOURCE_VOLUME_M3 = 48.0
 RECEIVING_VOLUME_M3 = 38.0
 SEPARATING_AREA_M2 = 11.5
@@ -271,6 +278,7 @@ def main(out_dir: Path = OUT_DIR) -> None:
     }
     (out_dir / "expected.json").write_text(json.dumps(expected, indent=1) + "\n", encoding="utf-8")
     (out_dir / "survey.toml").write_text(survey_toml(recordings), encoding="utf-8")
+    (out_dir / "wall.toml").write_text(WALL_TOML, encoding="utf-8")
     print_summary(expected)
 
 
@@ -287,6 +295,7 @@ def survey_toml(recordings: list[dict]) -> str:
         f"source_volume_m3 = {SOURCE_VOLUME_M3}",
         f'requirement = "{REQUIREMENT}"   # example requirement',
         f'construction = "{CONSTRUCTION}"',
+        'construction_file = "wall.toml"',
         "",
         "[calibration]   # invented chain: full-scale RMS = 125 dB re 20 uPa; 0.1 dB drift by the end",
         'file = "cal_before.flac"',

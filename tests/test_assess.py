@@ -119,3 +119,16 @@ def test_field_result_above_the_declared_lab_value_is_flagged(tmp_path):
     assert "field_above_lab" in {f.code for f in result.findings}
     result = _assess(_survey(tmp_path, extra_test_keys="element_lab_rw_db = 55"))
     assert "field_above_lab" not in {f.code for f in result.findings}
+
+
+def test_declared_construction_is_predicted_and_compared(tmp_path):
+    # 100 mm dense concrete predicts Rw 45 (fieldtl.construction, Sharp's method; tested there). The
+    # pasted field R' of 51 dB flat sits well above it, which the check reports as a likely input error.
+    (tmp_path / "wall.toml").write_text('name = "100 mm concrete"\n[[leaf]]\nlayers = ["concrete_dense:100"]\n')
+    result = _assess(_survey(tmp_path, extra_test_keys='construction_file = "wall.toml"'))
+    check = result.construction_check
+    assert check.predicted_rating.single_number_db == 45 and check.measured_rating.single_number_db == 51
+    assert "field_above_prediction" in {f.code for f in result.findings}
+    assert assessment_to_json(result)["construction_check"]["predicted_Rw"] == 45
+    from fieldtl.report.plot import construction_figure
+    assert construction_figure(check).axes[0].get_legend() is not None

@@ -12,6 +12,7 @@ from typing import Any
 
 from fieldtl.assess import Assessment
 from fieldtl.bands import BandSpectrum
+from fieldtl.construction import comparison_to_json
 from fieldtl.findings import Finding
 from fieldtl.insulation import AirborneResult
 from fieldtl.rating import Rating
@@ -72,6 +73,9 @@ def assessment_to_json(assessment: Assessment) -> dict[str, Any]:
             "rule": verdict.statement,
         },
         "uncertainty_note": assessment.uncertainty_note,
+        "construction_check": None if assessment.construction_check is None else {
+            key: value for key, value in comparison_to_json(assessment.construction_check).items()
+            if key != "warnings"},   # its findings are already under "warnings"
         "rules_applied": list(assessment.rules_applied),
         "warnings": [f.as_json() for f in assessment.findings],
         "cautions": list(assessment.cautions),
@@ -118,6 +122,11 @@ def assessment_to_text(assessment: Assessment) -> str:
                      + (f"   ({terms})" if terms else ""))
     if assessment.uncertainty_note:
         lines.append(f"  Table uncertainty: {assessment.uncertainty_note}")
+    check = assessment.construction_check
+    if check is not None:
+        measured = "not rated" if check.measured_rating is None else f"R'w {check.measured_rating.single_number_db} dB"
+        lines += ["", f"Construction check: the declared build-up predicts Rw {check.predicted_rating.single_number_db} "
+                      f"dB; measured {measured}; mean band gap {check.mean_gap_db:+.1f} dB (prediction minus field)"]
     if assessment.verdict is not None:
         verdict = assessment.verdict
         lines += ["", f"Verdict: {verdict.outcome.upper()} against '{verdict.requirement}'", f"  {verdict.statement}"]

@@ -13,6 +13,7 @@ from matplotlib.figure import Figure
 
 from fieldtl.assess import Assessment
 from fieldtl.bands import BandSpectrum
+from fieldtl.construction import Comparison
 from fieldtl.errors import InputError
 from fieldtl.rating import Rating
 
@@ -73,3 +74,24 @@ def save_assessment_plot(assessment: Assessment, path: str | Path, *, descriptor
     target = Path(path)
     assessment_figure(assessment, descriptor=descriptor).savefig(target)
     return target
+
+
+def construction_figure(comparison: Comparison, *, title: str = "") -> Figure:
+    """Predicted R of the declared construction beside the measured R', with the gap per band."""
+    figure = Figure(figsize=(7.0, 4.2), dpi=110, layout="constrained")
+    axes = figure.add_subplot()
+    bands = comparison.gap_db.nominal_hz
+    x = np.arange(len(bands))
+    axes.plot(x, comparison.predicted_db.as_array(), color=REFERENCE_COLOUR, linestyle=":", marker="s",
+              markersize=3, label=f"predicted R (Rw {comparison.predicted_rating.single_number_db} dB)")
+    measured = comparison.measured_rating
+    axes.plot(x, comparison.measured_db.as_array(), color=MEASURED_COLOUR, marker="o", markersize=3.5,
+              label="measured R'" + ("" if measured is None else f" (R'w {measured.single_number_db} dB)"))
+    axes.bar(x, comparison.gap_db.as_array(), color=DEVIATION_COLOUR, alpha=0.35, label="gap (predicted - measured)")
+    axes.set_xticks(x, [f"{f:g}" for f in bands], rotation=90, fontsize=7)
+    axes.set_xlabel("one-third-octave band (Hz)")
+    axes.set_ylabel("dB")
+    axes.grid(alpha=0.3)
+    axes.set_title(title or "Declared construction: prediction against the field result", fontsize=10)
+    axes.legend(fontsize=7, loc="best")
+    return figure
