@@ -152,3 +152,23 @@ def test_assess_bad_input_exits_2_with_one_line(tmp_path, capsys, edit, needle):
 def test_assess_missing_survey(tmp_path, capsys):
     code, _, err = _run(capsys, "assess", tmp_path / "none.toml")
     assert code == 2 and "none.toml: survey file not found" in err
+
+
+def test_predict_inline_layer_json(tmp_path, capsys):
+    # 200 mm dense concrete, about 460 kg/m2: Rw 56 (Sharp's method with edge losses; see
+    # tests/test_construction.py for the formula checks against hand calculations).
+    code, out, _ = _run(capsys, "predict", "--layer", "concrete_dense:200", "--json", tmp_path / "p.json")
+    document = json.loads((tmp_path / "p.json").read_text())
+    assert code == 0 and "Rw 56 dB" in out
+    assert set(document) >= {"frequencies_hz", "R_db", "critical_frequency_hz", "ratings"}
+    assert document["ratings"]["Rw"]["value"] == 56 and len(document["R_db"]) == 21
+
+
+@pytest.mark.parametrize("argv, needle", [
+    (["predict"], "give either a construction file or one or more --layer"),
+    (["predict", "--layer", "unobtainium:10"], "unknown material 'unobtainium'"),
+    (["predict", "--layer", "concrete_dense:-5"], "concrete_dense:-5"),
+])
+def test_predict_bad_input(capsys, argv, needle):
+    code, _, err = _run(capsys, *argv)
+    assert code == 2 and needle in err and err.count("\n") == 1
