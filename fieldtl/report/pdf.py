@@ -1,4 +1,4 @@
-"""Assessment → a printable PDF report (fpdf2), two to three A4 pages.
+"""Assessment → a printable PDF report (fpdf2), usually three A4 pages.
 
 Order: title block and the standards applied, cautions, test details, per-band table, chart,
 single numbers with uncertainty and verdict, QA notes, closing line. The cautions are repeated
@@ -6,7 +6,8 @@ in small type in every page footer.
 
 Every string reaches the page as plain text: markdown is never enabled, control characters are
 dropped and characters the embedded font (matplotlib's DejaVu Sans) cannot draw are replaced by
-U+FFFD, so names such as "Müller & Søn <b>" print literally and no input can crash the writer.
+U+FFFD, so names such as "Müller & Søn <b>" print literally and an unusual character never
+stops the writer.
 """
 
 from __future__ import annotations
