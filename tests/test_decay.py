@@ -311,6 +311,24 @@ def test_ensemble_of_identical_decays_is_the_decay_itself():
         assert a.t20_s == pytest.approx(b.t20_s, rel=1e-9) and a.edt_s == pytest.approx(b.edt_s, rel=1e-9)
 
 
+def test_ensemble_average_is_the_decay_of_the_summed_squared_responses():
+    # Two noise-free responses, T = 0.5 s and 0.8 s, the second 6 dB weaker: the ensemble average
+    # must be the Schroeder curve of the sum of their squared band responses (ISO 3382-2 ensemble
+    # averaging, from memory), not an equal-weight mix of the two normalised curves.
+    responses = [modal_impulse_response(0.5, odd_bands=False, length_s=2.5),
+                 0.5 * modal_impulse_response(0.8, odd_bands=False, length_s=2.5)]
+    analyses = [reverberation_from_impulse_response(r, sample_rate_hz=FS, nominal_hz=[1000.0], noise_handling="none")
+                for r in responses]
+    sos = band_sos(1000.0, sample_rate_hz=FS)
+    start = round(0.01 * FS)
+    summed = sum(signal.sosfilt(sos, r[start:][::-1])[::-1] ** 2 for r in responses)
+    level_db = schroeder_decay_db(summed)
+    expected = fit_decay_line(np.arange(level_db.size) / FS, level_db, top_db=-5.0, bottom_db=-25.0)
+    ensemble = average_reverberation(analyses, method="ensemble").bands[0]
+    assert ensemble.t20_s == pytest.approx(expected.reverberation_time_s, rel=0.002)
+    assert ensemble.t20_s < 0.70                     # an equal-weight mix of the two curves gives 0.73 s (computed)
+
+
 def test_a_take_without_a_decay_is_left_out_of_the_average_with_a_finding():
     good = reverberation_from_impulse_response(modal_impulse_response(0.6, odd_bands=False, length_s=2.0),
                                                sample_rate_hz=FS, nominal_hz=[500.0])

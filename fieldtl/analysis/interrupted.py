@@ -3,8 +3,8 @@
 The recording holds one or more periods of steady noise, each followed by the room's decay
 after the source is switched off. Each band is filtered forward (as a real-time analyser would,
 so B·T > 16 applies), its energy smoothed, and the decays after every switch-off are
-weighted by the steady state before them and ensemble-averaged; 0 dB of the averaged curve is
-its level just before the switch-off, the decay's initial level. The averaged curve is
+ensemble-averaged as energies; 0 dB of the averaged curve is its level just before the
+switch-off, the decay's initial level. The averaged curve is
 evaluated like any other decay (:func:`fieldtl.analysis.decay.evaluate_curve`); EDT is not.
 """
 
@@ -114,14 +114,13 @@ def reverberation_from_interrupted_noise(
         fraction: Fraction = 3, source_name: str = "interrupted-noise recording") -> DecayAnalysis:
     """EDT, T20, T30 per band from a recording of one or more noise interruptions.
 
-    Several interruptions are ensemble-averaged (ISO 3382-2, from memory): each decay is
-    divided by its steady state (the mean band energy of the second half of its excitation),
-    the average runs over the shortest decay period, and 0 dB is the averaged level in the
-    smoothing window just before the switch-off (a single decay starts from wherever the
-    fluctuating noise left it). The dynamic range is that initial level over the background
-    (the last 20 % of each silence). Leave at least the decay time of silence after each
-    switch-off. Does not check that the excitation was broadband or long enough for the room to
-    reach steady state, and gives no EDT (see :func:`fieldtl.analysis.decay.evaluate_curve`).
+    Several interruptions are ensemble-averaged as energies (ISO 3382-2, from memory) over
+    the shortest decay period, and 0 dB is their averaged level in the smoothing window just
+    before the switch-off (a single decay starts from wherever the fluctuating noise left it).
+    The dynamic range is that initial level over the background (the last 20 % of each
+    silence). Leave at least the decay time of silence after each switch-off. Does not check
+    that the excitation was broadband or long enough for the room to reach steady state, and
+    gives no EDT (see :func:`fieldtl.analysis.decay.evaluate_curve`).
     """
     samples = checked_audio(recording, sample_rate_hz=sample_rate_hz, source_name=source_name,
                             min_duration_s=MIN_RECORDING_S)
@@ -152,29 +151,26 @@ def _band_decay(samples: np.ndarray, nominal_hz: float, interruptions: tuple[Int
     delay = round(_group_delay_s(sos, nominal_hz, fraction, sample_rate_hz) * sample_rate_hz)
     decays, initials, noises = [], [], []
     for part in interruptions:
-        # Each decay is weighted by its own steady state (mean of the excitation's second half).
-        steady = float(np.mean(energy[part.on_start + (part.switch_off - part.on_start) // 2: part.switch_off]))
         band_off = part.switch_off + delay
         # The centred envelope still holds excitation for half a window after the switch-off.
         start, stop = band_off + half, min(part.off_end + delay, energy.size) - half
-        if stop - start < 2 or steady <= 0.0 or band_off - half < 0:
+        if stop - start < 2 or band_off - half < 0:
             continue
-        decays.append(envelope[start:stop] / steady)
-        initials.append(float(envelope[band_off - half]) / steady)   # the window just before the switch-off
-        tail = energy[stop - max(1, int(NOISE_TAIL_FRACTION * (stop - start))): stop]
-        noises.append(float(np.mean(tail)) / steady)
-    if not decays:
+        decays.append(envelope[start:stop])
+        initials.append(float(envelope[band_off - half]))   # the window just before the switch-off
+        noises.append(float(np.mean(energy[stop - max(1, int(NOISE_TAIL_FRACTION * (stop - start))): stop])))
+    initial = float(np.mean(initials)) if initials else 0.0
+    if initial <= 0.0:
         return band_without_decay(nominal_hz, fraction, None, (_short_off_finding(source_name, nominal_hz),),
                                   bt_limit=BT_MIN_FORWARD)
     length = min(d.size for d in decays)
-    # Ensemble average; 0 dB is the averaged level just before the switch-off, the decay's initial
-    # level, from which the evaluation ranges count (ISO 3382-2, from memory).
-    initial = float(np.mean(initials))
+    # Ensemble average of the squared-pressure decays; 0 dB is their averaged level just before
+    # the switch-off, the decay's initial level, from which the ranges count (ISO 3382-2, from memory).
     mean_decay = np.mean([d[:length] for d in decays], axis=0) / initial
     noise = max(float(np.mean(noises)) / initial, np.finfo(float).tiny)
     step = max(1, round(CURVE_STEP_S * sample_rate_hz))
     curve = DecayCurve(nominal_hz, fraction, step / sample_rate_hz, tuple(_db(mean_decay[::step]).tolist()),
-                       -10.0 * math.log10(noise), "interrupted_noise")
+                       -10.0 * math.log10(noise), "interrupted_noise", initial)
     return evaluate_curve(curve, source_name=source_name)
 
 
