@@ -1,0 +1,1 @@
+"""Streamlit user interface: the only fieldtl package that imports streamlit."""
