@@ -24,7 +24,7 @@ from fieldtl.qa import (TakeSummary, check_against_lab_rating, check_astm_scope,
                         check_calibration, check_decays, check_durations, check_geometry, check_positions,
                         check_source_spectrum, check_spatial_spread, check_stationarity)
 from fieldtl.rating import Rating, rate_e413, rate_e989, rate_iso717_1, rate_iso717_2
-from fieldtl.survey import Survey
+from fieldtl.survey import Geometry, Survey
 from fieldtl.uncertainty import (CombinedUncertainty, Verdict, band_standard_error_db, decide,
                                  parse_requirement, propagate_to_single_number, table_uncertainty)
 
@@ -70,6 +70,9 @@ class Assessment:
     table_uncertainty_db: dict[str, float] = field(default_factory=dict, hash=False)
     uncertainty_note: str = ""
     construction_check: Comparison | None = None   # declared build-up predicted and compared with R'
+    geometry: Geometry | None = None               # as entered in the survey
+    construction: str | None = None                # the survey's description of the element
+    element_lab_rw_db: float | None = None         # declared laboratory Rw of the element, if given
 
 
     def rating(self, descriptor: str) -> Rating | None:
@@ -127,7 +130,8 @@ def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
                       uncertainty=combined, findings=tuple(found), takes=tuple(takes),
                       rules_applied=result.rules_applied,
                       table_uncertainty_db={d: u.standard_uncertainty_db for d, u in table_u.items()},
-                      uncertainty_note=note, construction_check=check)
+                      uncertainty_note=note, construction_check=check, geometry=survey.geometry,
+                      construction=survey.construction, element_lab_rw_db=survey.element_lab_rw_db)
 
 
 def _construction_check(survey: Survey, result: AirborneResult | ImpactResult) -> Comparison | None:

@@ -8,6 +8,7 @@ come from, marked "from memory" or "common practice" where they are not read fro
 from __future__ import annotations
 
 import math
+import warnings
 from collections import Counter
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -186,7 +187,9 @@ def check_decays(takes: Sequence[TakeSummary]) -> tuple[Finding, ...]:
         return ()
     bands = decays[0].reverberation_time_s.nominal_hz
     values = np.vstack([t.reverberation_time_s.select(bands).as_array() for t in decays])
-    median = np.nanmedian(values, axis=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)   # a band no decay could evaluate: median nan
+        median = np.nanmedian(values, axis=0)
     found = []
     for j, band_hz in enumerate(bands):
         with np.errstate(invalid="ignore"):

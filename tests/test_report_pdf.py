@@ -64,7 +64,7 @@ def worked_example():
     assessment, survey = _airborne()
     details = ReportDetails(project="Invented project", client="Invented client", engineer="A. N. Other",
                             instruments="Class 1 microphone s/n 000 (invented)\nCalibrator s/n 111 (invented)")
-    return _pages(assessment_to_pdf(assessment, details=details, survey=survey))
+    return _pages(assessment_to_pdf(assessment, details=details))
 
 
 def test_single_numbers_and_band_values_of_the_worked_example(worked_example):
@@ -119,7 +119,7 @@ def test_test_details_list_geometry_positions_and_instruments(worked_example):
 @pytest.fixture(scope="module")
 def background_limited():
     assessment, survey = _airborne(background_db=40.0)
-    return _flat("\n".join(_pages(assessment_to_pdf(assessment, survey=survey))))
+    return _flat("\n".join(_pages(assessment_to_pdf(assessment))))
 
 
 def test_background_limited_bands_are_marked_as_bounds(background_limited):
@@ -140,7 +140,7 @@ def test_impact_report_marks_upper_bounds():
     # Li 60 dB over background 55 dB: margin 5 dB -> Li 58.7 dB, an upper bound; L'nT = Li - 10 lg(T/T0)
     # = 58.7 - 10 lg(0.8 / 0.5) = 56.66 -> 56.7, also an upper bound (ISO 16283-2, facts sheet 1.8).
     assessment, survey = _impact()
-    pages = _pages(assessment_to_pdf(assessment, survey=survey))
+    pages = _pages(assessment_to_pdf(assessment))
     text = _flat("\n".join(pages))
     assert "≤58.7" in text and "≤56.7" in text
     assert re.search(r"L'nT,w ISO 717-2 ≤\d\d ", text)
@@ -153,7 +153,7 @@ def test_hostile_user_text_prints_literally():
                                    construction="<img src=x onerror=alert(1)> & **wall**")
     details = ReportDetails(project="Müller & Søn <b>flats</b> {nb}", client="<script>alert(1)</script>",
                             engineer="__init__ `code` [link](http://x)", notes="bell\x07 tab\tend 漢字 \u202eevil")
-    pages = _pages(assessment_to_pdf(assessment, details=details, survey=survey))
+    pages = _pages(assessment_to_pdf(assessment, details=details))
     text = _flat("\n".join(pages))
     assert "<script>alert(1)</script>" in text
     assert "Müller & Søn <b>flats</b> {nb}" in text          # {nb} is fpdf2's page-count alias elsewhere
@@ -164,9 +164,9 @@ def test_hostile_user_text_prints_literally():
     assert "bell tab end \ufffd\ufffd evil" in text and "\x07" not in text and "\u202e" not in text
 
 
-def test_without_requirement_or_survey_the_report_says_so():
+def test_without_requirement_or_geometry_the_report_says_so():
     assessment, _ = _airborne(requirement=None)
-    text = _flat("\n".join(_pages(assessment_to_pdf(assessment))))
+    text = _flat("\n".join(_pages(assessment_to_pdf(dataclasses.replace(assessment, geometry=None)))))
     assert "No requirement entered, so no verdict." in text
     assert "S used for R' = 10.00 m²; entered room volumes and area not given to the report" in text
     assert "Project not stated" in text
@@ -174,7 +174,7 @@ def test_without_requirement_or_survey_the_report_says_so():
 
 def test_requirement_the_test_cannot_give_is_reported_not_hidden():
     assessment, survey = _airborne(requirement="L'nT,w <= 62")
-    text = _flat("\n".join(_pages(assessment_to_pdf(assessment, survey=survey))))
+    text = _flat("\n".join(_pages(assessment_to_pdf(assessment))))
     assert "No verdict: L'nT,w could not be computed from this test" in text
     assert "verdict_not_possible" in text
 
@@ -197,7 +197,7 @@ def test_missing_band_prints_a_dash_and_lost_ratings_are_findings():
     # No decay at 1000 Hz: T, Dn, DnT and R' have no value there (they need T or A = 0.16 V/T,
     # ISO 16283-1), so the ISO ratings over 100-3150 Hz cannot be formed; D = L1 - L2 still can (NIC).
     assessment, survey = _airborne(decay_gap_hz=1000.0)
-    text = _flat("\n".join(_pages(assessment_to_pdf(assessment, survey=survey))))
+    text = _flat("\n".join(_pages(assessment_to_pdf(assessment))))
     assert "1000 95.0 45.0 10.0 – 50.0 – – –" in text
     assert re.search(r"NIC ASTM E413 \d\d ", text) and "DnT,w ISO" not in text
     assert "rating_not_possible" in text and "No verdict:" in text
@@ -206,6 +206,6 @@ def test_missing_band_prints_a_dash_and_lost_ratings_are_findings():
 def test_report_without_any_single_number_has_no_chart():
     assessment, survey = _airborne()
     bare = dataclasses.replace(assessment, ratings=(), rated_spectra=(), verdict=None)
-    text = _flat("\n".join(_pages(assessment_to_pdf(bare, survey=survey))))
+    text = _flat("\n".join(_pages(assessment_to_pdf(bare))))
     assert "No single number could be formed, so there is no chart." in text
     assert "No single number could be formed (see the QA notes)." in text

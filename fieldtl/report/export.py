@@ -98,7 +98,10 @@ def assessment_to_text(assessment: Assessment) -> str:
     """A plain-text report for the terminal: band table, single numbers, verdict, findings, cautions."""
     columns = band_columns(assessment)
     limited = assessment.result.limited
-    bound_mark = "≤" if assessment.test_type == "impact" else "≥"
+    # Background-limited bands: corrected receiving levels are upper bounds, so airborne results
+    # (D, Dn, DnT, R') are lower bounds and impact results (L'n, L'nT) upper bounds.
+    upper_bound_columns = {"L2", "Li", "L_prime_n", "L_prime_nT"}
+    lower_bound_columns = {"D", "Dn", "DnT", "R_prime"}
     lines = [assessment.title, f"{assessment.test_type} test; levels "
              f"{'calibrated (dB re 20 µPa)' if assessment.calibrated else 'in dB re full scale (no calibration)'}", ""]
     header = f"{'Hz':>6} " + " ".join(f"{name.replace('_prime', chr(39)):>8}" for name in columns)
@@ -108,11 +111,11 @@ def assessment_to_text(assessment: Assessment) -> str:
         for name, spectrum in columns.items():
             value = spectrum.values[i]
             text = "-" if value is None else (f"{value:.2f}" if spectrum.unit == "s" else f"{value:.1f}")
-            if limited[i] and name not in ("L1", "B", "T"):
-                text = bound_mark + text
+            if limited[i] and name in upper_bound_columns | lower_bound_columns:
+                text = ("≤" if name in upper_bound_columns else "≥") + text
             cells.append(f"{text:>8}")
         lines.append(f"{_number(frequency_hz):>6} " + " ".join(cells))
-    lines.append(f"{bound_mark} marks a band limited by background noise (value is a bound).")
+    lines.append("≥ / ≤ mark a band limited by background noise: the true value is at least / at most this.")
     lines += ["", "Single numbers"]
     for rating in assessment.ratings:
         terms = ", ".join(f"{k} {v:+d}" for k, v in rating.adaptation_terms_db.items())
@@ -152,7 +155,10 @@ def grouped_findings(findings: tuple[Finding, ...]) -> list[tuple[Finding, int, 
     """
     groups: dict[tuple[str, str, str], list[Finding]] = {}
     for finding in findings:
-        take = finding.message.split(",")[0] if finding.band_hz is not None else finding.message
+        if finding.band_hz is None:
+            take = finding.message
+        else:   # "<take>, <band> Hz: ..." names a take; "<band> Hz: ..." is about the test as a whole
+            take = finding.message.split(",")[0] if f", {finding.band_hz:g} Hz" in finding.message else ""
         groups.setdefault((finding.code, finding.action, take), []).append(finding)
     folded = [(members[0], len(members), tuple(f.band_hz for f in members if f.band_hz is not None))
               for members in groups.values()]

@@ -31,7 +31,6 @@ from fieldtl.errors import InputError
 from fieldtl.insulation import AirborneResult
 from fieldtl.report.export import band_columns, grouped_findings
 from fieldtl.report.plot import assessment_figure
-from fieldtl.survey import Survey
 
 _FONT = "DejaVu"
 _FONT_DIR = Path(matplotlib.get_data_path()) / "fonts" / "ttf"
@@ -95,15 +94,8 @@ class ReportDetails:
             raise InputError("report details: instruments must be lines of text")
 
 
-def assessment_to_pdf(assessment: Assessment, *, details: ReportDetails | None = None,
-                      survey: Survey | None = None) -> bytes:
-    """The PDF report of one test, as bytes.
-
-    ``survey`` supplies what the Assessment does not carry: the entered geometry (S, V receiving,
-    V source), the construction description and a declared laboratory Rw; without it the report
-    prints the S actually used and says the rest was not given. Does not compute anything and
-    does not write files.
-    """
+def assessment_to_pdf(assessment: Assessment, *, details: ReportDetails | None = None) -> bytes:
+    """The PDF report of one test, as bytes. Does not compute anything and does not write files."""
     details = details or ReportDetails()
     pdf = _ReportPdf(assessment.cautions)
     pdf.set_title(_safe(assessment.title))
@@ -111,7 +103,7 @@ def assessment_to_pdf(assessment: Assessment, *, details: ReportDetails | None =
     pdf.start()
     _title_block(pdf, assessment, details)
     _cautions_box(pdf, assessment.cautions)
-    _test_details(pdf, assessment, details, survey)
+    _test_details(pdf, assessment, details)
     _band_table(pdf, assessment)
     _chart(pdf, assessment)
     _single_numbers(pdf, assessment)
@@ -250,11 +242,11 @@ def _cautions_box(pdf: FPDF, cautions: tuple[str, ...]) -> None:
                        align="L", new_x=XPos.LMARGIN, new_y=YPos.NEXT)
 
 
-def _test_details(pdf: FPDF, assessment: Assessment, details: ReportDetails, survey: Survey | None) -> None:
+def _test_details(pdf: FPDF, assessment: Assessment, details: ReportDetails) -> None:
     _heading(pdf, "Test details")
     _field(pdf, "Test", f"{_TEST_TYPES[assessment.test_type]}; input {assessment.source_name}")
-    _field(pdf, "Geometry", _geometry_text(assessment, survey))
-    _field(pdf, "Construction", (survey.construction or "") if survey else "")
+    _field(pdf, "Geometry", _geometry_text(assessment))
+    _field(pdf, "Construction", assessment.construction or "")
     _field(pdf, "Levels", "calibrated, dB re 20 µPa" if assessment.calibrated else
            "not calibrated: dB re full scale. Level differences and ratings hold only if every recording "
            "used the same gain; absolute levels (L1, L2, B) are not sound pressure levels")
@@ -269,12 +261,12 @@ def _test_details(pdf: FPDF, assessment: Assessment, details: ReportDetails, sur
     _bullets(pdf, assessment.rules_applied)
 
 
-def _geometry_text(assessment: Assessment, survey: Survey | None) -> str:
+def _geometry_text(assessment: Assessment) -> str:
     used = assessment.result.separating_area_m2 if isinstance(assessment.result, AirborneResult) else None
     used_text = "" if used is None else f"S used for R' = {used:.2f} m²"
-    if survey is None:
+    geometry = assessment.geometry
+    if geometry is None:
         return "; ".join(filter(None, [used_text, "entered room volumes and area not given to the report"]))
-    geometry = survey.geometry
     parts = [f"V receiving = {_number(geometry.receiving_volume_m3)} m³"]
     if geometry.source_volume_m3 is not None:
         parts.append(f"V source = {_number(geometry.source_volume_m3)} m³")
@@ -282,8 +274,8 @@ def _geometry_text(assessment: Assessment, survey: Survey | None) -> str:
         parts.append(f"S entered = {_number(geometry.separating_area_m2)} m²")
     if used_text:
         parts.append(used_text)
-    if survey.element_lab_rw_db is not None:
-        parts.append(f"declared laboratory Rw of the element = {_number(survey.element_lab_rw_db)} dB")
+    if assessment.element_lab_rw_db is not None:
+        parts.append(f"declared laboratory Rw of the element = {_number(assessment.element_lab_rw_db)} dB")
     return "; ".join(parts)
 
 

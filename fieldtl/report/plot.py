@@ -54,7 +54,7 @@ def rating_figure(spectrum: BandSpectrum, rating: Rating, *, limited: tuple[bool
     headline = f"{rating.descriptor} = {rating.single_number_db} dB"
     if rating.bound:
         headline += f" ({rating.bound} bound)"
-    axes.set_title(f"{title}\n{headline}" if title else headline, fontsize=10)
+    axes.set_title(f"{title}\n{headline}" if title else headline, fontsize=10, parse_math=False)
     axes.legend(fontsize=7, loc="best")
     return figure
 
@@ -92,6 +92,7 @@ def construction_figure(comparison: Comparison, *, title: str = "") -> Figure:
     axes.set_xlabel("one-third-octave band (Hz)")
     axes.set_ylabel("dB")
     axes.grid(alpha=0.3)
-    axes.set_title(title or "Declared construction: prediction against the field result", fontsize=10)
+    axes.set_title(title or "Declared construction: prediction against the field result", fontsize=10,
+                   parse_math=False)
     axes.legend(fontsize=7, loc="best")
     return figure
