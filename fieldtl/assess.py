@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 from fieldtl.bands import BandSpectrum
+from fieldtl.cautions import CAUTIONS
 from fieldtl.construction import Comparison, compare_with_measurement
 from fieldtl.construction.predict import predict
 from fieldtl.errors import InputError
@@ -28,12 +29,6 @@ from fieldtl.survey import Geometry, Survey
 from fieldtl.uncertainty import (CombinedUncertainty, Verdict, band_standard_error_db, decide,
                                  parse_requirement, propagate_to_single_number, table_uncertainty)
 
-CAUTIONS: tuple[str, ...] = (
-    "Test loudspeakers and tapping machines reach levels that damage hearing: wear hearing protection, "
-    "keep other people out of the rooms and raise levels gradually.",
-    "Results are indicative unless produced under an accredited procedure; local building codes and "
-    "licensed practice decide whether a construction complies.",
-)
 
 SourceCombination = Literal["energy", "arithmetic", "simultaneous"]
 AreaRule = Literal["smaller", "receiving", "source", "off"]

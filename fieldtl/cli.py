@@ -86,7 +86,7 @@ def _parser() -> argparse.ArgumentParser:
                             help="RMS level in dB re full scale (default -18; noise peaks ~13 dB higher)")
     signal_cmd.add_argument("--low-hz", type=float, default=40.0, help="lowest frequency (default 40 Hz)")
     signal_cmd.add_argument("--high-hz", type=float, default=12_500.0, help="highest frequency (default 12.5 kHz)")
-    signal_cmd.add_argument("--fade-s", type=float, default=0.05, help="fade in and out (default 0.05 s)")
+    signal_cmd.add_argument("--fade-s", type=float, default=0.05, help="noise fade in and out (default 0.05 s)")
     signal_cmd.add_argument("--sample-rate-hz", type=int, default=48_000)
     signal_cmd.add_argument("--seed", type=int, help="noise seed, for a reproducible file")
     signal_cmd.set_defaults(run=_run_signal)
@@ -260,9 +260,9 @@ def _run_signal(args: argparse.Namespace) -> int:
     print(f"CAUTION: {HEARING_CAUTION}")
     if args.kind == "sweep":
         duration_s = 10.0 if args.seconds == 30.0 else args.seconds
+        # Default fades, exactly as fieldtl.measure.sweep_from_spec rebuilds the sweep for deconvolution.
         spec = SweepSpec(duration_s=duration_s, sample_rate_hz=args.sample_rate_hz, low_hz=args.low_hz,
-                         high_hz=args.high_hz, level_db_fs=args.level_dbfs, fade_in_s=args.fade_s,
-                         fade_out_s=min(args.fade_s, 0.01))
+                         high_hz=args.high_hz, level_db_fs=args.level_dbfs)
         samples = exponential_sweep(spec, silence_s=3.0)
         print(f"sweep {spec.low_hz:g}-{spec.high_hz:g} Hz over {spec.duration_s:g} s, then 3 s of silence; "
               f"analyse with: fieldtl decay REC.wav --method sweep --sweep-start-hz {spec.low_hz:g} "

@@ -15,10 +15,9 @@ import numpy as np
 import soundfile
 from scipy import fft
 
+from fieldtl.cautions import HEARING_CAUTION  # re-exported: offered wherever signals are
 from fieldtl.errors import InputError
 
-HEARING_CAUTION = ("Test signals and tapping machines reach sound levels that damage hearing: wear hearing "
-                   "protection, keep other people out of the rooms, and raise the level gradually.")
 
 SINE_CREST_DB = 10.0 * math.log10(2.0)   # a sine's peak is √2 times its RMS: 3.01 dB (computed)
 DECONVOLUTION_REGULARISATION_DB = 60.0   # ε of the spectral division, dB below the sweep's peak power
