@@ -172,3 +172,27 @@ def test_predict_inline_layer_json(tmp_path, capsys):
 def test_predict_bad_input(capsys, argv, needle):
     code, _, err = _run(capsys, *argv)
     assert code == 2 and needle in err and err.count("\n") == 1
+
+
+def test_sweep_written_by_signal_is_deconvolved_by_decay(tmp_path, capsys):
+    # Round trip through both commands: the room's impulse response (T = 0.6 s in every band, made by
+    # fieldtl.audio.synthesis) convolved with the written sweep must give T20 back (analytic truth);
+    # an average over bands keeps the single-decay scatter small.
+    from scipy import signal as sps
+
+    from fieldtl.audio.synthesis import impulse_response_with_decay
+    from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, BandSpectrum
+
+    assert _run(capsys, "signal", "sweep", tmp_path / "sweep.wav", "--seconds", "3", "--low-hz", "50",
+                "--high-hz", "10000")[0] == 0
+    sweep, rate = soundfile.read(str(tmp_path / "sweep.wav"))
+    t_true = BandSpectrum(THIRD_OCTAVES_50_5000_HZ, (0.6,) * 21, "s", "T")
+    ir = impulse_response_with_decay(t_true, sample_rate_hz=rate, duration_s=2.0, seed=3, noise_floor_db=70.0)
+    recording = sps.fftconvolve(sweep, ir)[: sweep.size]
+    make_data.write(tmp_path / "rec.wav", 0.5 * recording / np.max(np.abs(recording)), subtype="FLOAT")
+    code, _, err = _run(capsys, "decay", tmp_path / "rec.wav", "--method", "sweep", "--sweep-start-hz", "50",
+                        "--sweep-stop-hz", "10000", "--sweep-length-s", "3", "--json", tmp_path / "d.json")
+    assert code == 0, err
+    document = json.loads((tmp_path / "d.json").read_text())
+    mid = [document["T20_s"][document["frequencies_hz"].index(f)] for f in (500, 630, 800, 1000, 1250, 1600, 2000)]
+    assert np.mean(mid) == pytest.approx(0.6, rel=0.04)

@@ -375,3 +375,20 @@ def test_unusable_input_raises_one_line(samples, kwargs, match):
     with pytest.raises(InputError, match=match) as caught:
         reverberation_from_impulse_response(samples, **arguments)
     assert "\n" not in str(caught.value)
+
+
+def test_trailing_digital_silence_does_not_hide_the_decay():
+    # An impulse response file padded with a second of zeros (or deconvolution residue ~165 dB down)
+    # must give the same T20 as without the padding: padding is not the room's noise (Lundeby's
+    # noise estimate from the last 10 %, facts sheet 6.3, would read the padding instead).
+    rate = 48_000
+    time_s = np.arange(int(1.5 * rate)) / rate
+    rng = np.random.default_rng(11)
+    response = rng.standard_normal(time_s.size) * np.exp(-6.91 * time_s / 0.5) + 1e-3 * rng.standard_normal(time_s.size)
+    plain = reverberation_from_impulse_response(response, sample_rate_hz=rate)
+    padded = reverberation_from_impulse_response(np.concatenate([response, np.zeros(rate)]), sample_rate_hz=rate)
+    residue = np.concatenate([response, 1e-9 * rng.standard_normal(rate)])
+    with_residue = reverberation_from_impulse_response(residue, sample_rate_hz=rate)
+    assert plain.spectrum("T20").values == padded.spectrum("T20").values
+    assert plain.spectrum("T20").values == with_residue.spectrum("T20").values
+    assert None not in plain.spectrum("T20").values

@@ -44,6 +44,7 @@ BT_MIN_FORWARD = 16.0              # B·T > 16 with forward filtering (ISO 3382-
 START_BELOW_PEAK_DB = 20.0         # IR start: first point 20 dB below the peak (ISO 3382-1, from memory)
 CURVE_STEP_S = 0.001               # decay curves are kept at about 1 ms resolution
 MIN_IMPULSE_RESPONSE_S = 0.1
+PADDING_BELOW_PEAK_DB = 140.0  # below any recording's noise (24-bit spans 144 dB); above FFT residue
 CLAUSE_RANGE = "ISO 3382-2 (from memory): bottom of the evaluation range at least 10 dB above the noise"
 CLAUSE_ANNEX_B = "ISO 3382-2 Annex B (from memory)"
 
@@ -256,6 +257,7 @@ def _from_impulse_response(impulse_response: np.ndarray, *, sample_rate_hz: floa
                          f"got {noise_handling!r}")
     if not np.any(response):
         raise InputError(f"{source_name}: all samples are zero")
+    response = without_trailing_padding(response)
     start = impulse_start_index(response)
     if start is None:
         finding = Finding("impulse_start_not_found", "error",
@@ -267,6 +269,17 @@ def _from_impulse_response(impulse_response: np.ndarray, *, sample_rate_hz: floa
     bands = tuple(_impulse_band(response[start:], f, fraction=fraction, sample_rate_hz=sample_rate_hz,
                                 noise_handling=noise_handling, source_name=source_name) for f in bands_hz)
     return DecayAnalysis(source_name, method, "single", 1, bands, ())
+
+
+def without_trailing_padding(response: np.ndarray) -> np.ndarray:
+    """The response without the digital silence (zeros, or numerical residue) some files end with.
+
+    Samples after the last one within PADDING_BELOW_PEAK_DB of the peak are padding, not room: a
+    recorded noise floor is always far above that, and Lundeby's noise estimate from the last
+    10 % (facts sheet 6.3) would otherwise read the padding instead of the noise.
+    """
+    threshold = float(np.max(np.abs(response))) * 10.0 ** (-PADDING_BELOW_PEAK_DB / 20.0)
+    return response[: int(np.flatnonzero(np.abs(response) > threshold)[-1]) + 1]
 
 
 def _impulse_band(response: np.ndarray, nominal_hz: float, *, fraction: Fraction, sample_rate_hz: float,
