@@ -1,0 +1,287 @@
+"""The shape of stored data: the row values passed out of the store, their checks, and the migrations.
+
+Migrations are named functions applied in order, each inside the same transaction as the row
+recording its name in ``schema_migrations``; ``PRAGMA user_version`` counts the applied ones.
+A second migration is one more function appended to :data:`MIGRATIONS`; a function, once
+released, is never edited or reordered.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import sqlite3
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from typing import Any
+
+from fieldtl.errors import InputError, StoreError
+from fieldtl.survey import DECAY_METHODS, ROLES_BY_TYPE
+from fieldtl.uncertainty import parse_requirement
+
+TEST_TYPES: tuple[str, ...] = ("airborne", "impact")
+CALIBRATION_ROLES: tuple[str, ...] = ("calibration", "calibration_after")
+TAKE_SOURCES: tuple[str, ...] = ("upload", "recorder")
+UNCERTAINTY_SITUATIONS: tuple[str, ...] = ("A", "B", "C")       # ISO 12999-1 situations
+CALIBRATOR_RANGE_DB = (60.0, 150.0)                               # same bounds as the survey file
+
+
+def take_roles(test_type: str) -> tuple[str, ...]:
+    """Roles a take of this test type may have: the survey roles plus the calibrator checks."""
+    return ROLES_BY_TYPE[test_type] + CALIBRATION_ROLES
+
+
+def utc_now() -> str:
+    """Timestamp stored in every row: ISO 8601, UTC, microseconds (orders rows made in one second)."""
+    return datetime.now(timezone.utc).isoformat(timespec="microseconds")
+
+
+# --- row values ------------------------------------------------------------------------------------
+
+@dataclass(frozen=True, slots=True)
+class Project:
+    id: int
+    name: str
+    client: str
+    address: str
+    engineer: str
+    created_at: str
+    updated_at: str
+
+
+@dataclass(frozen=True, slots=True)
+class TestSetup:
+    """What the engineer enters for one test; checked on construction (InputError, one line).
+
+    Does not check that the requirement's descriptor suits the test type (the verdict does).
+    """
+
+    __test__ = False          # not a pytest test class, whatever its name
+
+    title: str
+    test_type: str
+    receiving_volume_m3: float
+    separating_area_m2: float | None = None
+    source_volume_m3: float | None = None
+    construction: str = ""
+    requirement: str | None = None
+    element_lab_rw_db: float | None = None
+    uncertainty_situation: str = "B"
+    calibrator_db: float = 94.0
+    settings: Mapping[str, Any] = field(default_factory=dict, hash=False)   # JSON object: app choices
+
+    def __post_init__(self) -> None:
+        where = f"test {self.title!r}" if isinstance(self.title, str) else "test"
+        check_text(self.title, f"{where} title")
+        check_text(self.construction, f"{where} construction")
+        if self.test_type not in TEST_TYPES:
+            raise InputError(f"{where}: type must be airborne or impact, got {self.test_type!r}")
+        check_number(self.receiving_volume_m3, f"{where} receiving_volume_m3", positive=True)
+        for name in ("separating_area_m2", "source_volume_m3", "element_lab_rw_db"):
+            if getattr(self, name) is not None:
+                check_number(getattr(self, name), f"{where} {name}", positive=True)
+        if self.requirement is not None:
+            check_text(self.requirement, f"{where} requirement")
+            try:
+                parse_requirement(self.requirement)
+            except InputError as exc:
+                raise InputError(f"{where}: {exc}") from None
+        if self.uncertainty_situation not in UNCERTAINTY_SITUATIONS:
+            raise InputError(f"{where}: uncertainty situation must be A, B or C, got {self.uncertainty_situation!r}")
+        check_number(self.calibrator_db, f"{where} calibrator_db", positive=True)
+        if not CALIBRATOR_RANGE_DB[0] <= self.calibrator_db <= CALIBRATOR_RANGE_DB[1]:
+            raise InputError(f"{where}: calibrator level must be 60-150 dB, got {self.calibrator_db!r}")
+        check_json_object(self.settings, f"{where} settings")
+
+
+@dataclass(frozen=True, slots=True)
+class TestRecord:
+    __test__ = False
+
+    id: int
+    project_id: int
+    setup: TestSetup
+    band_levels_csv: str | None
+    created_at: str
+    updated_at: str
+
+
+@dataclass(frozen=True, slots=True)
+class TakeRecord:
+    """One stored recording: what it is, where its bytes are, and what its header said."""
+
+    id: int
+    test_id: int
+    role: str
+    speaker: int                    # loudspeaker or tapping-machine position, 1-based
+    method: str | None              # decays only: impulse | interrupted | sweep
+    channel: int                    # 0-based channel analysed
+    file_name: str                  # content-addressed: <sha256><.wav|.flac> in the audio folder
+    original_name: str
+    sha256: str
+    sample_rate_hz: int
+    frames: int
+    duration_s: float
+    source: str                     # upload | recorder
+    recorder_settings: Mapping[str, Any] | None = field(hash=False)   # what the browser applied
+    excluded: bool
+    created_at: str
+    sweep_start_hz: float | None = None
+    sweep_stop_hz: float | None = None
+    sweep_length_s: float | None = None
+
+
+def check_take_fields(test_type: str, *, role: Any, speaker: Any, method: Any, channel: Any, source: Any,
+                      recorder_settings: Any, sweep: Mapping[str, Any], where: str) -> None:
+    """What a take says about itself fits its test: role, position, decay method, channel, origin."""
+    if role not in take_roles(test_type):
+        raise InputError(f"{where}: role {role!r} is not one of {', '.join(take_roles(test_type))} "
+                         f"for {test_type} tests")
+    if isinstance(speaker, bool) or not isinstance(speaker, int) or speaker < 1:
+        raise InputError(f"{where}: position must be a whole number 1 or more, got {speaker!r}")
+    if isinstance(channel, bool) or not isinstance(channel, int) or channel < 0:
+        raise InputError(f"{where}: channel must be a whole number 0 or more (0-based), got {channel!r}")
+    if role == "decay" and method not in DECAY_METHODS:
+        raise InputError(f"{where}: a decay needs a method, one of {', '.join(DECAY_METHODS)}; got {method!r}")
+    if role != "decay" and method is not None:
+        raise InputError(f"{where}: method applies to decay takes only")
+    for name, value in sweep.items():
+        if value is not None:
+            check_number(value, f"{where} {name}", positive=True)
+    if method == "sweep" and any(v is None for v in sweep.values()):
+        raise InputError(f"{where}: a sweep decay needs sweep_start_hz, sweep_stop_hz and sweep_length_s "
+                         "(the sweep that was played)")
+    if method != "sweep" and any(v is not None for v in sweep.values()):
+        raise InputError(f"{where}: sweep settings apply to sweep decays only")
+    if source not in TAKE_SOURCES:
+        raise InputError(f"{where}: source must be upload or recorder, got {source!r}")
+    if recorder_settings is not None:
+        check_json_object(recorder_settings, f"{where} recorder settings")
+
+
+def check_text(value: Any, what: str) -> None:
+    if not isinstance(value, str):
+        raise InputError(f"{what}: expected text, got {type(value).__name__}")
+    try:
+        value.encode("utf-8")
+    except UnicodeEncodeError:
+        raise InputError(f"{what}: text holds characters that cannot be stored (lone surrogates)") from None
+
+
+def check_number(value: Any, what: str, *, positive: bool) -> None:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise InputError(f"{what}: expected a finite number, got {value!r}")
+    if positive and value <= 0:
+        raise InputError(f"{what}: must be positive, got {value!r}")
+
+
+def check_json_object(value: Any, what: str) -> None:
+    """A mapping that survives JSON unchanged (string keys, finite numbers, lists, nested objects)."""
+    if not isinstance(value, Mapping):
+        raise InputError(f"{what}: expected a JSON object, got {type(value).__name__}")
+    try:
+        text = json.dumps(dict(value), allow_nan=False)
+    except (TypeError, ValueError) as exc:
+        raise InputError(f"{what}: not storable as JSON ({exc})") from None
+    if json.loads(text) != value:
+        raise InputError(f"{what}: does not survive JSON unchanged (use string keys and lists, not tuples)")
+
+
+# --- migrations ------------------------------------------------------------------------------------
+
+Migration = Callable[[sqlite3.Connection], None]
+
+
+def m0001_create_tables(connection: sqlite3.Connection) -> None:
+    """Projects, tests and takes; deleting a project or test deletes its rows below it."""
+    statements = (
+        """CREATE TABLE projects (
+            id INTEGER PRIMARY KEY,
+            name TEXT NOT NULL,
+            client TEXT NOT NULL DEFAULT '',
+            address TEXT NOT NULL DEFAULT '',
+            engineer TEXT NOT NULL DEFAULT '',
+            created_at TEXT NOT NULL,
+            updated_at TEXT NOT NULL)""",
+        """CREATE TABLE tests (
+            id INTEGER PRIMARY KEY,
+            project_id INTEGER NOT NULL REFERENCES projects(id) ON DELETE CASCADE,
+            title TEXT NOT NULL,
+            test_type TEXT NOT NULL CHECK (test_type IN ('airborne', 'impact')),
+            separating_area_m2 REAL CHECK (separating_area_m2 > 0),
+            receiving_volume_m3 REAL NOT NULL CHECK (receiving_volume_m3 > 0),
+            source_volume_m3 REAL CHECK (source_volume_m3 > 0),
+            construction TEXT NOT NULL DEFAULT '',
+            requirement TEXT,
+            element_lab_rw_db REAL,
+            uncertainty_situation TEXT NOT NULL DEFAULT 'B' CHECK (uncertainty_situation IN ('A', 'B', 'C')),
+            calibrator_db REAL NOT NULL DEFAULT 94.0,
+            band_levels_csv TEXT,
+            settings TEXT NOT NULL DEFAULT '{}' CHECK (json_valid(settings)),
+            created_at TEXT NOT NULL,
+            updated_at TEXT NOT NULL)""",
+        "CREATE INDEX tests_project ON tests(project_id)",
+        """CREATE TABLE takes (
+            id INTEGER PRIMARY KEY,
+            test_id INTEGER NOT NULL REFERENCES tests(id) ON DELETE CASCADE,
+            role TEXT NOT NULL CHECK (role IN ('source', 'receiving', 'background', 'decay', 'source_corner',
+                                               'receiving_corner', 'impact', 'calibration', 'calibration_after')),
+            speaker INTEGER NOT NULL DEFAULT 1 CHECK (speaker >= 1),
+            method TEXT CHECK (method IN ('impulse', 'interrupted', 'sweep')),
+            channel INTEGER NOT NULL DEFAULT 0 CHECK (channel >= 0),
+            sweep_start_hz REAL,
+            sweep_stop_hz REAL,
+            sweep_length_s REAL,
+            file_name TEXT NOT NULL,
+            original_name TEXT NOT NULL,
+            sha256 TEXT NOT NULL CHECK (length(sha256) = 64),
+            sample_rate_hz INTEGER NOT NULL,
+            frames INTEGER NOT NULL,
+            duration_s REAL NOT NULL,
+            source TEXT NOT NULL CHECK (source IN ('upload', 'recorder')),
+            recorder_settings TEXT CHECK (recorder_settings IS NULL OR json_valid(recorder_settings)),
+            excluded INTEGER NOT NULL DEFAULT 0 CHECK (excluded IN (0, 1)),
+            created_at TEXT NOT NULL)""",
+        "CREATE INDEX takes_test ON takes(test_id)",
+        "CREATE INDEX takes_file ON takes(file_name)",
+    )
+    for statement in statements:
+        connection.execute(statement)
+
+
+MIGRATIONS: tuple[Migration, ...] = (m0001_create_tables,)
+SCHEMA_VERSION = len(MIGRATIONS)
+
+
+def migrate(connection: sqlite3.Connection, *, source_name: str) -> tuple[str, ...]:
+    """Apply the migrations this database lacks, in one transaction; returns the names applied.
+
+    The connection must be in autocommit mode (isolation_level None). BEGIN IMMEDIATE takes the
+    write lock first, so two processes opening a new database apply each migration once.
+    """
+    connection.execute("BEGIN IMMEDIATE")
+    try:
+        connection.execute("CREATE TABLE IF NOT EXISTS schema_migrations ("
+                            "name TEXT PRIMARY KEY, applied_at TEXT NOT NULL)")
+        applied = [row[0] for row in connection.execute("SELECT name FROM schema_migrations ORDER BY rowid")]
+        known = [m.__name__ for m in MIGRATIONS]
+        if applied != known[: len(applied)]:
+            raise StoreError(f"{source_name}: migrations {', '.join(applied)} do not match this version of "
+                             "fieldtl (made by a newer or different version?)")
+        version = connection.execute("PRAGMA user_version").fetchone()[0]
+        if version != len(applied):
+            raise StoreError(f"{source_name}: schema version {version} disagrees with "
+                             f"{len(applied)} recorded migrations")
+        pending = MIGRATIONS[len(applied):]
+        for number, migration in enumerate(pending, start=len(applied) + 1):
+            migration(connection)
+            connection.execute("INSERT INTO schema_migrations (name, applied_at) VALUES (?, ?)",
+                               (migration.__name__, utc_now()))
+            connection.execute(f"PRAGMA user_version = {number:d}")
+        connection.execute("COMMIT")
+    except BaseException:
+        if connection.in_transaction:
+            connection.execute("ROLLBACK")
+        raise
+    return tuple(m.__name__ for m in pending)
