@@ -1,4 +1,4 @@
-"""The store loses nothing: a writer killed with SIGKILL, and two writers at once.
+"""The store loses nothing: a writer killed with SIGKILL, two writers at once, threads sharing one store.
 
 Checks are SQLite's own (PRAGMA integrity_check) and hashlib's SHA-256 of every file a committed
 take names; the writer is tests/data/store_writer.py run as a separate process.
@@ -86,3 +86,13 @@ def test_two_writers_at_once_lose_nothing(tmp_path):
     with Store.open(database) as store:
         assert store.schema_state() == (len(MIGRATIONS), tuple(m.__name__ for m in MIGRATIONS))   # each applied once
         assert len(store.list_projects()) == 2
+
+
+def test_threads_sharing_one_store_lose_nothing(tmp_path):
+    # Streamlit shares one cached Store between sessions' threads; its lock serialises the connection.
+    from concurrent.futures import ThreadPoolExecutor
+    with Store.open(tmp_path / "fieldtl.sqlite3") as store:
+        with ThreadPoolExecutor(max_workers=4) as pool:
+            created = list(pool.map(lambda i: store.create_project(f"Thread project {i}").id, range(40)))
+        assert len(set(created)) == 40
+        assert sorted(p.id for p in store.list_projects()) == sorted(created)
