@@ -179,7 +179,7 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
     missing = [r for r in REQUIRED_ROLES[test_type] if r not in roles]
     if missing:
         raise InputError(f"{source_name}: no recording with role {', '.join(repr(m) for m in missing)} "
-                         f"(a {test_type} test needs {', '.join(REQUIRED_ROLES[test_type])})")
+                         f"(an {test_type} test needs {', '.join(REQUIRED_ROLES[test_type])})")
     return Survey(title=str(test.get("title", "Untitled test")), test_type=test_type, geometry=geometry,
                   source_name=source_name, takes=takes, band_columns=band_columns, calibration=calibration,
                   requirement=requirement, construction=test.get("construction"),
@@ -313,7 +313,7 @@ def _take(entry: Any, number: int, test_type: str, base_dir: Path, source_name: 
     role = entry.get("role")
     if role not in ROLES_BY_TYPE[test_type]:
         raise InputError(f"{source_name}: {where} role {role!r} is not one of "
-                         f"{', '.join(ROLES_BY_TYPE[test_type])} for a {test_type} test")
+                         f"{', '.join(ROLES_BY_TYPE[test_type])} for an {test_type} test")
     speaker = entry.get("speaker", 1)
     if isinstance(speaker, bool) or not isinstance(speaker, int) or speaker < 1:
         raise InputError(f"{source_name}: {where} speaker must be a position number 1 or more, got {speaker!r}")
