@@ -121,6 +121,8 @@ class Survey:
     uncertainty_situation: str = "B"
     element_lab_rw_db: float | None = None
     declared_construction: Construction | None = None
+    construction_toml: str | None = None        # the construction file's text, kept for the store
+    band_levels_csv: str | None = None          # the pasted CSV text, kept for the store
 
 
 def load_survey(path: str | Path) -> Survey:
@@ -162,19 +164,22 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
             parse_requirement(requirement)
         except InputError as exc:
             raise InputError(f"{source_name}: [test] {exc}") from None
-    declared = None
+    declared, construction_toml = None, None
     if "construction_file" in test:
-        declared = load_construction(_existing(base_dir, test["construction_file"], "[test] construction_file",
-                                               source_name))
+        construction_path = _existing(base_dir, test["construction_file"], "[test] construction_file", source_name)
+        declared = load_construction(construction_path)
+        construction_toml = construction_path.read_text(encoding="utf-8")
     calibration = _calibration(data.get("calibration"), base_dir, source_name)
     recordings = data.get("recording", [])
     if not isinstance(recordings, list):
         raise InputError(f"{source_name}: [[recording]] must be an array of tables")
     takes = tuple(_take(entry, i + 1, test_type, base_dir, source_name) for i, entry in enumerate(recordings))
     band_columns: tuple[BandColumn, ...] = ()
+    band_levels_csv = None
     if "band_levels" in test:
         csv_file = _existing(base_dir, test["band_levels"], "[test] band_levels", source_name)
-        band_columns = read_band_levels_csv(csv_file.read_text(encoding="utf-8"), source_name=csv_file.name)
+        band_levels_csv = csv_file.read_text(encoding="utf-8")
+        band_columns = read_band_levels_csv(band_levels_csv, source_name=csv_file.name)
     roles = {t.role for t in takes} | {c.role for c in band_columns}
     missing = [r for r in REQUIRED_ROLES[test_type] if r not in roles]
     if missing:
@@ -185,7 +190,8 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
                   requirement=requirement, construction=test.get("construction"),
                   uncertainty_situation=situation,
                   element_lab_rw_db=_positive(test, "element_lab_rw_db", source_name, required=False),
-                  declared_construction=declared)
+                  declared_construction=declared, construction_toml=construction_toml,
+                  band_levels_csv=band_levels_csv)
 
 
 _COLUMN = re.compile(r"^(?P<kind>L1|L2|Li|B|T|L1c|L2c)(?:_s(?P<speaker>\d+))?(?:_(?P<label>[A-Za-z0-9]+))?$")

@@ -18,6 +18,7 @@ import sqlite3
 import tempfile
 import threading
 import time
+import tomllib
 import uuid
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
@@ -28,6 +29,7 @@ from typing import Any
 import platformdirs
 
 from fieldtl.audio.ingest import file_sha256, iter_blocks, open_recording
+from fieldtl.construction import Construction, construction_from_dict
 from fieldtl.errors import InputError, StoreError
 from fieldtl.store.schema import (Project, TakeRecord, TestRecord, TestSetup, check_take_fields, check_text,
                                   migrate, utc_now)
@@ -406,7 +408,7 @@ class Store:
         missing = _missing_roles(test, takes)
         if missing:
             raise InputError(f"{where}: no included take with role {', '.join(missing)} "
-                             f"(a {setup.test_type} test needs {', '.join(REQUIRED_ROLES[setup.test_type])})")
+                             f"(an {setup.test_type} test needs {', '.join(REQUIRED_ROLES[setup.test_type])})")
         for take in takes:
             if not self.take_path(take).is_file():
                 raise StoreError(f"{where}: the audio of {take.original_name!r} ({take.file_name}) is missing "
@@ -424,7 +426,8 @@ class Store:
                       source_name=setup.title, takes=specs, band_columns=columns,
                       calibration=self._calibration(takes, setup, where), requirement=setup.requirement,
                       construction=setup.construction or None, uncertainty_situation=setup.uncertainty_situation,
-                      element_lab_rw_db=setup.element_lab_rw_db)
+                      element_lab_rw_db=setup.element_lab_rw_db,
+                      declared_construction=_declared_construction(setup, where))
 
     def _calibration(self, takes: tuple[TakeRecord, ...], setup: TestSetup, where: str) -> CalibrationSpec | None:
         before = [t for t in takes if t.role == "calibration"]
@@ -660,3 +663,18 @@ def _fsync_folder(folder: Path) -> None:
         pass
     finally:
         os.close(descriptor)
+
+
+CONSTRUCTION_SETTING = "construction_toml"   # settings key: the declared build-up, construction-file TOML
+
+
+def _declared_construction(setup: TestSetup, where: str) -> Construction | None:
+    """The declared build-up kept in the test's settings, parsed as a construction file."""
+    text = setup.settings.get(CONSTRUCTION_SETTING)
+    if not text:
+        return None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{where}: declared construction is not valid TOML ({exc})") from None
+    return construction_from_dict(data, source_name=f"{where} construction")

@@ -1,0 +1,75 @@
+"""What a test still needs on site: counts of takes per role and position against the targets.
+
+A pure function of the test's type, geometry and the takes so far, for the capture page and the
+report. The targets are those of :mod:`fieldtl.qa` (ISO 16283-1/-2, from memory); a checklist
+item is advice, never a gate: results are computed with whatever is there.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from fieldtl.insulation.common import LOW_FREQUENCY_VOLUME_LIMIT_M3
+from fieldtl.qa import MIN_DECAYS, MIN_LOUDSPEAKER_POSITIONS, MIN_MICROPHONE_POSITIONS, MIN_TAPPING_POSITIONS
+
+CORNERS_PER_POSITION = 4          # low-frequency procedure, per source position and small room (from memory)
+MIN_BACKGROUND_TAKES = 1
+
+
+@dataclass(frozen=True, slots=True)
+class TakeCount:
+    """One role at one source position (``speaker`` 0 means "any position")."""
+
+    role: str
+    speaker: int
+
+
+@dataclass(frozen=True, slots=True)
+class ChecklistItem:
+    label: str
+    have: int
+    need: int
+    role: str
+    speaker: int = 0
+
+    @property
+    def done(self) -> bool:
+        return self.have >= self.need
+
+
+def checklist(*, test_type: str, receiving_volume_m3: float, source_volume_m3: float | None,
+              takes: Sequence[TakeCount], calibration_expected: bool = True,
+              band_levels_pasted: bool = False) -> tuple[ChecklistItem, ...]:
+    """Checklist items in the order they are usually measured on site."""
+    def count(role: str, speaker: int = 0) -> int:
+        return sum(1 for t in takes if t.role == role and (speaker == 0 or t.speaker == speaker))
+
+    items: list[ChecklistItem] = []
+    if calibration_expected and not band_levels_pasted:
+        items.append(ChecklistItem("Calibration tone at the start", count("calibration"), 1, "calibration"))
+    level_role = "impact" if test_type == "impact" else "receiving"
+    positions_needed = MIN_TAPPING_POSITIONS if test_type == "impact" else MIN_LOUDSPEAKER_POSITIONS
+    seen = sorted({t.speaker for t in takes if t.role in (level_role, "source")})
+    speakers = sorted(set(seen) | set(range(1, positions_needed + 1)))
+    what = "Tapping position" if test_type == "impact" else "Loudspeaker position"
+    for speaker in speakers:
+        if test_type == "airborne":
+            items.append(ChecklistItem(f"{what} {speaker}: source-room microphone positions",
+                                       count("source", speaker), MIN_MICROPHONE_POSITIONS, "source", speaker))
+        items.append(ChecklistItem(f"{what} {speaker}: receiving-room microphone positions",
+                                   count(level_role, speaker), MIN_MICROPHONE_POSITIONS, level_role, speaker))
+        small_rooms = [("source_corner", source_volume_m3)] if test_type == "airborne" else []
+        small_rooms.append(("receiving_corner", receiving_volume_m3))
+        for role, volume in small_rooms:
+            if volume is not None and volume < LOW_FREQUENCY_VOLUME_LIMIT_M3:
+                room = "source" if role == "source_corner" else "receiving"
+                items.append(ChecklistItem(f"{what} {speaker}: {room}-room corners (room under 25 m3)",
+                                           count(role, speaker), CORNERS_PER_POSITION, role, speaker))
+    items.append(ChecklistItem("Background noise in the receiving room", count("background"),
+                               MIN_BACKGROUND_TAKES, "background"))
+    items.append(ChecklistItem("Reverberation decays in the receiving room", count("decay"), MIN_DECAYS, "decay"))
+    if calibration_expected and not band_levels_pasted:
+        items.append(ChecklistItem("Calibration check at the end", count("calibration_after"), 1,
+                                   "calibration_after"))
+    return tuple(items)
