@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 
@@ -21,10 +22,11 @@ from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, Fraction
 from fieldtl.errors import InputError
 from fieldtl.findings import Finding
 from fieldtl.qa import TakeSummary
-from fieldtl.survey import BandColumn, CalibrationSpec, Survey, TakeSpec
+from fieldtl.survey import BandColumn, Survey, TakeSpec
 
 FIELD_RANGE_HZ = (50.0, 5000.0)                 # ISO 16283-1/-2 bands with the optional extensions
 Progress = Callable[[str, float], None]         # (take name, fraction of that take done)
+TakeMeasurer = Callable[..., tuple[TakeSummary, tuple[Finding, ...]]]   # measure_take's signature
 
 
 @dataclass(frozen=True, slots=True)
@@ -41,12 +43,21 @@ class MeasuredSurvey:
         return self.calibration is not None
 
 
-def measure_survey(survey: Survey, *, progress: Progress | None = None) -> MeasuredSurvey:
-    """Measure the survey's recordings, or take its pasted band levels as they are."""
+def measure_survey(survey: Survey, *, progress: Progress | None = None,
+                   take_measurer: TakeMeasurer | None = None,
+                   calibrator: Callable[[Path, int, float], Calibration] | None = None) -> MeasuredSurvey:
+    """Measure the survey's recordings, or take its pasted band levels as they are.
+
+    ``take_measurer`` and ``calibrator`` default to :func:`measure_take` and
+    :func:`calibrate_file`; the app passes cached versions of the same functions.
+    """
     if survey.band_columns:
         return MeasuredSurvey(takes_from_band_columns(survey.band_columns), None, None, ())
-    calibration = _calibrate(survey.calibration) if survey.calibration else None
-    after = _calibrate(survey.calibration, after=True) if survey.calibration and survey.calibration.file_after else None
+    measure = take_measurer or measure_take
+    calibrate = calibrator or calibrate_file
+    spec = survey.calibration
+    calibration = calibrate(spec.file, spec.channel, spec.reference_db) if spec else None
+    after = calibrate(spec.file_after, spec.channel, spec.reference_db) if spec and spec.file_after else None
     findings: list[Finding] = []
     for cal in (calibration, after):
         if cal is not None:
@@ -56,7 +67,7 @@ def measure_survey(survey: Survey, *, progress: Progress | None = None) -> Measu
     offset_db = 0.0 if calibration is None else calibration.offset_db
     takes = []
     for spec in survey.takes:
-        take, take_findings = measure_take(spec, level_offset_db=offset_db, progress=progress)
+        take, take_findings = measure(spec, level_offset_db=offset_db, progress=progress)
         takes.append(take)
         findings += take_findings
     return MeasuredSurvey(tuple(takes), calibration, after, tuple(findings))
@@ -117,11 +128,11 @@ def takes_from_band_columns(columns: Sequence[BandColumn]) -> tuple[TakeSummary,
                  for c in columns)
 
 
-def _calibrate(spec: CalibrationSpec, *, after: bool = False) -> Calibration:
-    file = spec.file_after if after else spec.file
-    recording = open_recording(file, channel=spec.channel)
+def calibrate_file(file: Path, channel: int, reference_db: float) -> Calibration:
+    """Calibration from a calibrator recording (the whole file is one tone take)."""
+    recording = open_recording(file, channel=channel)
     return calibration_from_tone(read_samples(recording), sample_rate_hz=recording.sample_rate_hz,
-                                 source_name=recording.name, reference_db=spec.reference_db)
+                                 source_name=recording.name, reference_db=reference_db)
 
 
 def _history_statistics(levels: LevelAnalysis) -> tuple[float | None, float | None]:
