@@ -1,4 +1,4 @@
-"""What a test still needs on site: counts of takes per role and position against the targets.
+"""What a test still needs on site, and what each take showed.
 
 A pure function of the test's type, geometry and the takes so far, for the capture page and the
 report. The targets are those of :mod:`fieldtl.qa` (ISO 16283-1/-2, from memory); a checklist
@@ -10,8 +10,14 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+import numpy as np
+
+from fieldtl.bands import BandSpectrum
+from fieldtl.findings import Finding
 from fieldtl.insulation.common import LOW_FREQUENCY_VOLUME_LIMIT_M3
-from fieldtl.qa import MIN_DECAYS, MIN_LOUDSPEAKER_POSITIONS, MIN_MICROPHONE_POSITIONS, MIN_TAPPING_POSITIONS
+from fieldtl.qa import (MIN_DECAYS, MIN_LOUDSPEAKER_POSITIONS, MIN_MICROPHONE_POSITIONS, MIN_TAPPING_POSITIONS,
+                        TakeSummary)
+from fieldtl.units import energetic_mean_db, energetic_sum_db
 
 CORNERS_PER_POSITION = 4          # low-frequency procedure, per source position and small room (from memory)
 MIN_BACKGROUND_TAKES = 1
@@ -73,3 +79,41 @@ def checklist(*, test_type: str, receiving_volume_m3: float, source_volume_m3: f
         items.append(ChecklistItem("Calibration check at the end", count("calibration_after"), 1,
                                    "calibration_after"))
     return tuple(items)
+
+
+def describe_take(take: TakeSummary, findings: Sequence[Finding], *,
+                  background_db: BandSpectrum | None = None, calibrated: bool) -> str:
+    """One line a site engineer reads at a glance: level, margin over background, clipping, decay."""
+    parts: list[str] = []
+    unit = "dB" if calibrated else "dB re FS"
+    if take.level_db is not None:
+        bands = [f for f in take.level_db.nominal_hz if 100 <= f <= 3150]
+        level = take.level_db.select(bands).as_array()
+        parts.append(f"{energetic_sum_db(level[np.isfinite(level)]):.1f} {unit} (100-3150 Hz)")
+        if background_db is not None and take.role in ("receiving", "impact", "receiving_corner"):
+            margin = level - background_db.select(bands).as_array()
+            if np.any(np.isfinite(margin)):
+                worst = int(np.nanargmin(margin))
+                parts.append(f"lowest margin over background {margin[worst]:.1f} dB at {bands[worst]:g} Hz")
+    if take.reverberation_time_s is not None:
+        t_s = take.reverberation_time_s.select([f for f in take.reverberation_time_s.nominal_hz
+                                                if 100 <= f <= 3150]).as_array()
+        valid = t_s[np.isfinite(t_s)]
+        parts.append(f"T20 in {valid.size} of {t_s.size} bands 100-3150 Hz"
+                     + (f", median {np.median(valid):.2f} s" if valid.size else ""))
+    if take.duration_s is not None:
+        parts.append(f"{take.duration_s:.1f} s")
+    serious = sorted({f.code for f in findings if f.severity in ("error", "warning")})
+    if serious:
+        parts.append("check: " + ", ".join(code.replace("_", " ") for code in serious))
+    return "; ".join(parts)
+
+
+def background_level_db(takes: Sequence[TakeSummary]) -> BandSpectrum | None:
+    """Energy mean of the background takes' band levels, or None without one."""
+    spectra = [t.level_db for t in takes if t.role == "background" and t.level_db is not None]
+    if not spectra:
+        return None
+    bands = spectra[0].nominal_hz
+    return BandSpectrum.from_array(bands, energetic_mean_db(np.vstack([s.select(bands).as_array() for s in spectra])),
+                                   "dB", "B")

@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from fieldtl import __version__
+from fieldtl.cautions import CAUTIONS
 from fieldtl.errors import FieldTLError, InputError
 
 EXIT_BAD_INPUT = 2
@@ -97,6 +98,17 @@ def _parser() -> argparse.ArgumentParser:
                          help="a layer of a single leaf (repeat for layers bonded together)")
     predict.add_argument("--json", type=Path, metavar="OUT", help="write the prediction as JSON")
     predict.set_defaults(run=_run_predict)
+
+    app = sub.add_parser("app", help="start the field app (opens the invented demo project on first start)")
+    app.add_argument("--host", default="127.0.0.1",
+                     help="address to serve on (default 127.0.0.1; use 0.0.0.0 for a phone on the site Wi-Fi)")
+    app.add_argument("--port", type=int, default=8501)
+    app.add_argument("--data-dir", type=Path, help="folder for the project store (default: your user data folder)")
+    app.add_argument("--access-code", help="code asked of every browser when served beyond this machine "
+                                           "(default: a new random code, printed here)")
+    app.add_argument("--cert", type=Path, help="TLS certificate (PEM); phones only allow recording over https")
+    app.add_argument("--key", type=Path, help="TLS private key (PEM) for --cert")
+    app.set_defaults(run=_run_app)
 
     demo = sub.add_parser("demo", help="assess the invented demo survey in sample_audio/")
     demo.add_argument("--out", type=Path, help="folder for demo JSON, CSV and chart (default: print only)")
@@ -250,6 +262,40 @@ def _run_predict(args: argparse.Namespace) -> int:
     if args.json:
         _write_json(args.json, prediction_to_json(prediction))
     return 0
+
+
+# --- the app ---------------------------------------------------------------------------------------------
+
+LOCAL_HOSTS = ("127.0.0.1", "localhost", "::1")
+
+
+def _run_app(args: argparse.Namespace) -> int:
+    import secrets
+    import subprocess
+
+    from fieldtl.store import default_data_dir
+
+    if (args.cert is None) != (args.key is None):
+        raise InputError("app: give both --cert and --key, or neither")
+    for path in (args.cert, args.key):
+        if path is not None and not path.is_file():
+            raise InputError(f"{path.name}: file not found ({path})")
+    data_dir = (args.data_dir or default_data_dir()).expanduser().resolve()
+    data_dir.mkdir(parents=True, exist_ok=True)
+    env = dict(os.environ, FIELDTL_DATA_DIR=str(data_dir))
+    if args.host not in LOCAL_HOSTS:
+        env["FIELDTL_ACCESS_CODE"] = args.access_code or secrets.token_hex(3)
+        print(f"Access code for other devices: {env['FIELDTL_ACCESS_CODE']}")
+    app_path = Path(__file__).resolve().parent / "ui" / "app.py"
+    root = app_path.parents[2]          # the repository, whose .streamlit/config.toml sets upload limits
+    command = [sys.executable, "-m", "streamlit", "run", str(app_path), "--server.address", args.host,
+               "--server.port", str(args.port), "--server.headless", "true", "--browser.gatherUsageStats", "false"]
+    if args.cert is not None:
+        command += ["--server.sslCertFile", str(args.cert), "--server.sslKeyFile", str(args.key)]
+    scheme = "https" if args.cert else "http"
+    print(f"fieldtl app on {scheme}://{args.host}:{args.port}  (store: {data_dir}); Ctrl+C stops it")
+    print(f"CAUTION: {CAUTIONS[0]}\nCAUTION: {CAUTIONS[1]}")
+    return subprocess.call(command, env=env, cwd=root if (root / ".streamlit" / "config.toml").is_file() else None)
 
 
 # --- test signals -------------------------------------------------------------------------------------

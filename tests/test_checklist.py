@@ -39,3 +39,21 @@ def test_impact_needs_four_tapping_positions_and_pasted_levels_need_no_calibrati
     assert "Tapping position 4: receiving-room microphone positions" in items
     assert not any("source-room" in label for label in items)
     assert "Calibration tone at the start" not in items
+
+
+def test_take_description_reads_level_margin_and_problems():
+    from fieldtl.bands import THIRD_OCTAVES_100_3150_HZ, BandSpectrum
+    from fieldtl.checklist import background_level_db, describe_take
+    from fieldtl.findings import Finding
+    from fieldtl.qa import TakeSummary
+
+    bands = THIRD_OCTAVES_100_3150_HZ
+    level = BandSpectrum(bands, (50.0,) * 16, "dB", "Leq")
+    quiet = TakeSummary("bg.wav", "background", 1, level_db=BandSpectrum(bands, (30.0,) * 15 + (44.0,), "dB", "Leq"))
+    take = TakeSummary("rec.wav", "receiving", 1, duration_s=6.0, level_db=level)
+    text = describe_take(take, (Finding("clipping", "error", "x"),), background_db=background_level_db([quiet]),
+                         calibrated=True)
+    # 16 bands of 50 dB sum to 50 + 10 lg 16 = 62.04 dB (energy sum, analytic); worst margin 6 dB at 3150 Hz.
+    assert text == "62.0 dB (100-3150 Hz); lowest margin over background 6.0 dB at 3150 Hz; 6.0 s; check: clipping"
+    decay = TakeSummary("ir.wav", "decay", 1, reverberation_time_s=BandSpectrum(bands, (0.5,) * 15 + (None,), "s", "T"))
+    assert describe_take(decay, (), calibrated=False) == "T20 in 15 of 16 bands 100-3150 Hz, median 0.50 s"

@@ -1,5 +1,6 @@
 """Test signals and sweep deconvolution, checked against analytic truths (Farina 2000, spectra)."""
 
+import io
 import math
 
 import numpy as np
@@ -186,13 +187,17 @@ def test_deconvolution_rejects_a_recording_that_stops_with_the_sweep():
 
 def test_write_signal_wav_is_24_bit_and_refuses_to_clip(tmp_path):
     noise = pink_noise(0.5, sample_rate_hz=FS, seed=5)
-    path = write_signal_wav(tmp_path / "pink.wav", noise, sample_rate_hz=FS)
+    path = tmp_path / "pink.wav"
+    write_signal_wav(path, noise, sample_rate_hz=FS)
     info = soundfile.info(str(path))
     assert (info.subtype, info.samplerate, info.channels) == ("PCM_24", FS, 1)
     read, _ = soundfile.read(str(path))
     assert np.max(np.abs(read - noise)) <= 2.0 ** -23
     with pytest.raises(InputError, match="would clip"):
         write_signal_wav(tmp_path / "loud.wav", noise * 20.0, sample_rate_hz=FS)
+    buffer = io.BytesIO()          # the app writes into memory for a download
+    write_signal_wav(buffer, noise, sample_rate_hz=FS)
+    assert soundfile.info(io.BytesIO(buffer.getvalue())).subtype == "PCM_24"
 
 
 @pytest.mark.parametrize("samples, sample_rate_hz, match", [

@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from pathlib import Path
+from typing import BinaryIO
 
 import numpy as np
 import soundfile
@@ -239,21 +240,21 @@ def _active_length(sweep: np.ndarray) -> int:
     return int(np.flatnonzero(np.abs(sweep) > peak * 1e-4)[-1]) + 1
 
 
-def write_signal_wav(path: str | Path, samples: np.ndarray, *, sample_rate_hz: float) -> Path:
-    """Write a mono 24-bit PCM WAV; raises InputError instead of clipping a sample beyond ±1."""
-    target = Path(path)
-    audio = checked_audio(samples, sample_rate_hz=sample_rate_hz, source_name=target.name)
+def write_signal_wav(target: str | Path | BinaryIO, samples: np.ndarray, *, sample_rate_hz: float) -> None:
+    """Write a mono 24-bit PCM WAV to a path or a binary file object; never clips (InputError instead)."""
+    name = Path(target).name if isinstance(target, (str, Path)) else "signal.wav"
+    audio = checked_audio(samples, sample_rate_hz=sample_rate_hz, source_name=name)
     if sample_rate_hz != int(sample_rate_hz):
-        raise InputError(f"{target.name}: a WAV file needs a whole-number sample rate, got {sample_rate_hz:g} Hz")
+        raise InputError(f"{name}: a WAV file needs a whole-number sample rate, got {sample_rate_hz:g} Hz")
     peak = float(np.max(np.abs(audio)))
     if peak > 1.0:
-        raise InputError(f"{target.name}: peak {20 * math.log10(peak):+.2f} dB re full scale would clip; "
+        raise InputError(f"{name}: peak {20 * math.log10(peak):+.2f} dB re full scale would clip; "
                          "lower the level")
     try:
-        soundfile.write(str(target), audio, int(sample_rate_hz), subtype="PCM_24", format="WAV")
+        soundfile.write(str(target) if isinstance(target, Path) else target, audio, int(sample_rate_hz),
+                        subtype="PCM_24", format="WAV")
     except (RuntimeError, soundfile.LibsndfileError, OSError) as exc:
-        raise InputError(f"{target.name}: cannot write the WAV file ({exc})") from None
-    return target
+        raise InputError(f"{name}: cannot write the WAV file ({exc})") from None
 
 
 def _sample_count(name: str, duration_s: float, sample_rate_hz: float) -> int:

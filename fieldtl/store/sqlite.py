@@ -427,7 +427,7 @@ class Store:
                       calibration=self._calibration(takes, setup, where), requirement=setup.requirement,
                       construction=setup.construction or None, uncertainty_situation=setup.uncertainty_situation,
                       element_lab_rw_db=setup.element_lab_rw_db,
-                      declared_construction=_declared_construction(setup, where))
+                      declared_construction=declared_construction(setup, where))
 
     def _calibration(self, takes: tuple[TakeRecord, ...], setup: TestSetup, where: str) -> CalibrationSpec | None:
         before = [t for t in takes if t.role == "calibration"]
@@ -668,7 +668,7 @@ def _fsync_folder(folder: Path) -> None:
 CONSTRUCTION_SETTING = "construction_toml"   # settings key: the declared build-up, construction-file TOML
 
 
-def _declared_construction(setup: TestSetup, where: str) -> Construction | None:
+def declared_construction(setup: TestSetup, where: str) -> Construction | None:
     """The declared build-up kept in the test's settings, parsed as a construction file."""
     text = setup.settings.get(CONSTRUCTION_SETTING)
     if not text:
