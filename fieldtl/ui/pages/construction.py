@@ -47,8 +47,7 @@ if check is not None:
                    f"{common.md(finding.action)}")
 else:
     st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in prediction.r_db.nominal_hz],
-                               "R predicted": list(prediction.r_db.rounded(1))}), hide_index=True,
-                 use_container_width=True)
+                               "R predicted": list(prediction.r_db.rounded(1))}), hide_index=True)
 with st.expander("What the prediction leaves out"):
     for note in prediction.notes:
         st.write(f"- {common.md(note)}")
