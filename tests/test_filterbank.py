@@ -98,21 +98,24 @@ def test_bands_sit_at_exact_base_ten_frequencies():
 def test_chain_is_0_db_at_the_centre_and_half_power_at_the_edges(sample_rate_hz):
     # analytic: a Butterworth band-pass designed between f1 and f2 is -10 lg 2 = -3.0103 dB at both
     # edges; the chain is normalised to 0 dB at fm. The anti-alias ripple (0.002 dB per stage) and
-    # the one-third octaves' low-side guard (under 0.02 dB at f1, computed) are the only other
+    # the one-third octaves' low-side guard (up to 0.04 dB at f1, computed) are the only other
     # things in the pass band.
     bank = design_filter_bank(sample_rate_hz=sample_rate_hz, low_hz=20.0, high_hz=10_000.0)
     for band in bank.bands:
         centre, low, high = 20 * np.log10(bank.composite_response(
             np.array([band.centre_hz, band.low_hz, band.high_hz]))[bank.bands.index(band)])
         assert centre == pytest.approx(0.0, abs=1e-9)
-        assert (low, high) == pytest.approx((-3.0103, -3.0103), abs=0.025)
+        assert (low, high) == pytest.approx((-3.0103, -3.0103), abs=0.05)
 
 
 def test_anti_alias_low_pass_stop_band_is_90_db_down():
-    # design contract: 90 dB stop band from half the output rate, well below the 60-70 dB floor of
-    # the class-1 mask (facts sheet 7.3, common practice)
-    _, response = signal.sosfreqz(anti_alias_sos(), worN=np.linspace(0.25, 0.5, 500), fs=1.0)
-    assert 20 * np.log10(np.max(np.abs(response))) < -89.99
+    # design contract: 90 dB down from 0.6 of the output rate (0.3 of the input rate), well below
+    # the 60-70 dB floor of the class-1 mask (facts sheet 7.3, common practice); flat to 0.002 dB
+    # up to 0.38 of the output rate
+    _, stop = signal.sosfreqz(anti_alias_sos(), worN=np.linspace(0.3, 0.5, 500), fs=1.0)
+    assert 20 * np.log10(np.max(np.abs(stop))) < -89.99
+    _, passed = signal.sosfreqz(anti_alias_sos(), worN=np.linspace(0.0, 0.19, 500), fs=1.0)
+    assert np.max(np.abs(20 * np.log10(np.abs(passed)))) < 0.0021
 
 
 def stream_in_blocks(bank, samples, block_sizes):
@@ -159,11 +162,12 @@ def test_composite_response_is_what_the_stream_does_to_sines():
         outputs, _ = stream_in_blocks(bank, np.sin(2 * np.pi * frequency_hz * time_s), [time_s.size])
         expected = bank.composite_response(np.array([frequency_hz]))[:, 0]
         for band, output, amplitude in zip(bank.bands, outputs, expected):
-            if amplitude < 1e-4:       # below -80 dB the sine's own start-up transient is comparable
+            if amplitude < 1e-4:       # below -80 dB
                 continue
-            steady = output[math.ceil(band.settle_s * sample_rate_hz / 2**band.stage):]
+            # skip 0.5 s: far down a skirt the click of switching the sine on outlasts 5/B
+            steady = output[math.ceil(0.5 * sample_rate_hz / 2**band.stage):]
             measured = math.sqrt(2 * np.mean(steady**2))
-            assert 20 * math.log10(measured / amplitude) == pytest.approx(0.0, abs=0.02), (frequency_hz, band.nominal_hz)
+            assert 20 * math.log10(measured / amplitude) == pytest.approx(0.0, abs=0.01), (frequency_hz, band.nominal_hz)
 
 
 def pink_noise(samples: int, *, seed: int) -> np.ndarray:
