@@ -1,0 +1,151 @@
+"""The app driven headless with Streamlit's AppTest: the site workflow from an empty store to a verdict."""
+
+from pathlib import Path
+
+import make_data
+import pytest
+import streamlit as st
+from streamlit.testing.v1 import AppTest
+
+from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, BandSpectrum
+from fieldtl.store import Store, TestSetup
+
+APP = str(Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "app.py")
+BANDS = THIRD_OCTAVES_50_5000_HZ
+
+
+@pytest.fixture
+def data_dir(tmp_path, monkeypatch):
+    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "store"))
+    monkeypatch.delenv("FIELDTL_ACCESS_CODE", raising=False)
+    st.cache_resource.clear()
+    st.cache_data.clear()
+    yield tmp_path / "store"
+    st.cache_resource.clear()
+    st.cache_data.clear()
+
+
+def _app() -> AppTest:
+    at = AppTest.from_file(APP, default_timeout=180)
+    at.run()
+    assert not at.exception, [e.value for e in at.exception]
+    return at
+
+
+def _button(at, text):
+    return next(b for b in at.button if text in b.label)
+
+
+def test_demo_opens_on_first_start_and_reaches_a_verdict(data_dir):
+    at = _app()
+    assert at.title[0].value == "Projects"
+    _button(at, "INVENTED DEMO").click().run()
+    assert at.title[0].value == "Takes" and not at.exception
+    assert "Checklist: " in at.get("progress")[0].proto.text
+    at.switch_page("pages/results.py").run()
+    assert not at.exception, [e.value for e in at.exception]
+    assert "PASS" in at.success[0].value and "DnT,w" in at.success[0].value
+    ratings = at.dataframe[0].value
+    # The invented truth rates DnT,w 54 (sample_audio/expected.json, computed with ISO 717-1).
+    assert int(ratings.loc[ratings["Rating"] == "DnT,w", "dB"].iloc[0]) == 54
+
+
+def _write_takes(folder):
+    folder.mkdir()
+    r_true = BandSpectrum(BANDS, tuple(36.0 + 1.2 * i for i in range(len(BANDS))), "dB", "R'")
+    survey = make_data.airborne_survey(
+        folder, reduction_db=r_true, source_db=BandSpectrum(BANDS, (94.0,) * len(BANDS), "dB", "L1"),
+        background_db=BandSpectrum(BANDS, tuple(26.0 - i for i in range(len(BANDS))), "dB", "B"),
+        reverberation_s=BandSpectrum(BANDS, (0.6,) * len(BANDS), "s", "T"), area_m2=10.0,
+        receiving_volume_m3=40.0, source_volume_m3=45.0, speakers=1, microphones=2)
+    return survey.parent
+
+
+def _upload(at, role, files):
+    at.selectbox[0].set_value(role).run()
+    uploader = at.get("file_uploader")[0]
+    for path in files:
+        uploader.upload(path.name, path.read_bytes(), "audio/wav")
+    at.run()
+
+
+def test_create_project_and_test_upload_takes_and_read_the_verdict(data_dir, tmp_path, monkeypatch):
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    folder = _write_takes(tmp_path / "takes")
+    at = _app()
+    at.text_input[0].input("Invented project")           # form fields are sent with the submit click
+    _button(at, "Create project").click().run()
+    _button(at, "New test in this project").click().run()
+    assert at.title[0].value == "Test set-up"
+    at.text_input[0].input("Invented room A to room B")
+    at.number_input[0].set_value(10.0)       # S
+    at.number_input[1].set_value(40.0)       # V receiving
+    at.number_input[2].set_value(45.0)       # V source
+    at.text_input[1].input("DnT,w >= 40")
+    _button(at, "Save test").click().run()
+    assert "Saved" in at.success[0].value, [e.value for e in at.error]
+
+    at.switch_page("pages/takes.py").run()
+    before = at.get("progress")[0].proto.text
+    _upload(at, "calibration", [folder / "cal.wav"])
+    _upload(at, "source", sorted(folder.glob("src_*.wav")))
+    _upload(at, "receiving", sorted(folder.glob("rec_*.wav")))
+    _upload(at, "background", sorted(folder.glob("bg_*.wav")))
+    at.radio[0].set_value("impulse") if at.radio else None
+    _upload(at, "decay", sorted(folder.glob("ir_*.wav")))
+    assert not at.error, [e.value for e in at.error]
+    assert at.get("progress")[0].proto.text != before            # the checklist advanced
+    with Store.open(data_dir / "fieldtl.sqlite3") as store:
+        test = store.list_tests(store.list_projects()[0].id)[0]
+        assert store.missing_roles(test.id) == ()
+
+    at.switch_page("pages/results.py").run()
+    assert not at.exception, [e.value for e in at.exception]
+    verdicts = at.success or at.warning or at.error
+    assert "DnT,w" in verdicts[0].value
+    assert any(word in verdicts[0].value for word in ("PASS", "FAIL", "UNDECIDED"))
+
+
+def test_an_invalid_upload_shows_one_clear_message_and_stores_nothing(data_dir, tmp_path, monkeypatch):
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    data_dir.mkdir(parents=True)
+    with Store.open(data_dir / "fieldtl.sqlite3") as store:
+        project = store.create_project("Invented")
+        store.create_test(project.id, TestSetup(title="t", test_type="airborne", receiving_volume_m3=30.0))
+    at = _app()
+    _button(at, "t — airborne").click().run()
+    bad = tmp_path / "notes.wav"
+    bad.write_text("this is not audio " * 40)
+    _upload(at, "receiving", [bad])
+    shown = at.error[0].value.replace("\\", "")          # markdown escapes of the file name removed
+    assert len(at.error) == 1 and "notes.wav: not a readable WAV or FLAC file" in shown
+    with Store.open(data_dir / "fieldtl.sqlite3") as store:
+        assert store.list_takes(store.list_tests(store.list_projects()[0].id)[0].id) == ()
+    assert not list((data_dir / "audio").glob("*.wav"))
+
+
+def test_access_code_is_asked_when_served_beyond_this_machine(data_dir, monkeypatch):
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    monkeypatch.setenv("FIELDTL_ACCESS_CODE", "4f2a9c")
+    at = _app()
+    assert at.text_input[0].label == "Access code" and at.title[0].value == "fieldtl"
+    at.text_input[0].input("wrong").run()
+    assert at.error[0].value == "That code is not right."
+    at.text_input[0].input("4f2a9c").run()
+    assert at.title[0].value == "Projects"
+
+
+def test_user_text_is_shown_literally(data_dir, monkeypatch):
+    # Streamlit renders labels and captions as markdown: user text is escaped so that a link, bold
+    # marks or tags typed into a name print as typed (CommonMark: a backslash makes punctuation literal).
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    hostile = "[click](http://x) **bold** <b>x</b>"
+    data_dir.mkdir(parents=True)
+    with Store.open(data_dir / "fieldtl.sqlite3") as store:
+        project = store.create_project(hostile)
+        store.create_test(project.id, TestSetup(title=hostile, test_type="airborne", receiving_volume_m3=30.0))
+    at = _app()
+    _button(at, "airborne").click().run()
+    caption = at.caption[0].value
+    assert "\\[click\\]\\(http\\://x\\) \\*\\*bold\\*\\* \\<b\\>x\\</b\\>" in caption
+    assert "[click](http" not in caption
