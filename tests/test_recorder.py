@@ -26,7 +26,6 @@ REPO = Path(__file__).resolve().parents[1]
 INDEX_HTML = (COMPONENT_DIR / "index.html").read_text()
 RECORDER_JS = (COMPONENT_DIR / "recorder.js").read_text()
 NODE = shutil.which("node")
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
 
 def wav_bytes(samples, *, sample_rate_hz=48_000, subtype="PCM_24", file_format="WAV"):
@@ -275,17 +274,15 @@ def streamlit_app(tmp_path):
 
 @pytest.mark.browser
 @pytest.mark.slow
-def test_a_take_through_chromiums_fake_microphone(streamlit_app):
-    sync_playwright = pytest.importorskip("playwright.sync_api").sync_playwright
-    if CHROMIUM is None:
-        pytest.skip("chromium is not installed")
+def test_a_take_through_chromiums_fake_microphone(streamlit_app, chromium_path):
+    from playwright.sync_api import sync_playwright
     url, out = streamlit_app
     # Chromium plays this file as its fake microphone: a 1 kHz sine of peak 0.1, whose RMS level
     # is 20 lg(0.1 / sqrt 2) = -23.01 dBFS (analytic).
     tone_path = make_data.write(out / "tone.wav", make_data.sine(1000, amplitude=0.1, duration_s=3.0),
                                  subtype="PCM_16")
     with sync_playwright() as playwright:
-        browser = playwright.chromium.launch(executable_path=CHROMIUM, args=[
+        browser = playwright.chromium.launch(executable_path=chromium_path, args=[
             "--use-fake-ui-for-media-stream", "--use-fake-device-for-media-stream",
             f"--use-file-for-fake-audio-capture={tone_path}"])
         try:

@@ -40,7 +40,7 @@ for rating in assessment.ratings:
     rows.append({"Rating": rating.descriptor, "dB": rating.single_number_db,
                  "C / CI": "" if first is None else f"{first:+d}", "Ctr": "" if second is None else f"{second:+d}",
                  "bound": {"lower": "≥", "upper": "≤"}.get(rating.bound or "", "")})
-st.dataframe(pd.DataFrame(rows), hide_index=True)
+st.table(pd.DataFrame(rows).set_index("Rating"))   # a plain table: five short columns fit a phone
 st.caption(f"Uncertainty table values: {common.md(assessment.uncertainty_note)}")
 
 st.subheader("Chart")
