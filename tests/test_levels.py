@@ -269,9 +269,9 @@ def test_band_the_rate_cannot_hold_is_refused_naming_the_file():
 
 
 def test_progress_reports_fractions_up_to_one():
-    samples = np.zeros(int(10 * RATE_HZ))
+    samples = np.zeros(int(60 * RATE_HZ))      # several internal chunks (levels.CHUNK_FRAMES)
     seen: list[float] = []
-    analyse_levels(np.split(samples, 10), sample_rate_hz=RATE_HZ, total_frames=samples.size, progress=seen.append)
+    analyse_levels(np.split(samples, 60), sample_rate_hz=RATE_HZ, total_frames=samples.size, progress=seen.append)
     assert seen == sorted(seen) and seen[-1] == 1.0 and len(seen) > 2 and 0 < seen[0] < 1
     unknown: list[float] = []
     analyse_levels([samples], sample_rate_hz=RATE_HZ, progress=unknown.append)
