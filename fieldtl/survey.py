@@ -35,7 +35,6 @@ import csv
 import io
 import math
 import re
-import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Literal
@@ -43,6 +42,7 @@ from typing import Any, Literal
 from fieldtl.bands import BandSpectrum, nominal_bands_hz
 from fieldtl.construction import Construction, load_construction
 from fieldtl.errors import InputError
+from fieldtl.tomlfile import read_toml_file
 from fieldtl.uncertainty import parse_requirement
 
 TestType = Literal["airborne", "impact"]
@@ -128,16 +128,7 @@ class Survey:
 def load_survey(path: str | Path) -> Survey:
     """Read and validate a survey file; recordings and CSV are checked to exist, not read."""
     file = Path(path)
-    name = file.name
-    if not file.is_file():
-        raise InputError(f"{name}: survey file not found ({file})")
-    try:
-        data = tomllib.loads(file.read_text(encoding="utf-8"))
-    except UnicodeDecodeError:
-        raise InputError(f"{name}: not a text file") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"{name}: not valid TOML ({exc})") from None
-    return survey_from_dict(data, base_dir=file.parent, source_name=name)
+    return survey_from_dict(read_toml_file(file, what="survey file"), base_dir=file.parent, source_name=file.name)
 
 
 def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) -> Survey:

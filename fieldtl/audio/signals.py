@@ -82,7 +82,7 @@ def _shaped_noise(name: str, duration_s: float, amplitude_exponent: float, *, sa
                   fade_out_s: float, seed: int | None) -> np.ndarray:
     """Random-phase Gaussian spectrum with amplitude ∝ f^exponent inside the band, then RMS-scaled."""
     top_hz = sample_rate_hz / 2 if high_hz is None else high_hz
-    n_samples = _sample_count(name, duration_s, sample_rate_hz)
+    n_samples = sample_count(name, duration_s, sample_rate_hz)
     _check_band(name, low_hz, top_hz, sample_rate_hz)
     _check_fades(name, fade_in_s, fade_out_s, duration_s)
     frequency_hz = fft.rfftfreq(n_samples, d=1.0 / sample_rate_hz)
@@ -121,7 +121,7 @@ class SweepSpec:
 
     def __post_init__(self) -> None:
         name = "sweep"
-        _sample_count(name, self.duration_s, self.sample_rate_hz)
+        sample_count(name, self.duration_s, self.sample_rate_hz)
         _check_band(name, self.low_hz, self.high_hz, self.sample_rate_hz)
         _check_fades(name, self.fade_in_s, self.fade_out_s, self.duration_s)
         if not math.isfinite(self.level_db_fs) or self.level_db_fs + SINE_CREST_DB > 0.0:
@@ -257,7 +257,8 @@ def write_signal_wav(target: str | Path | BinaryIO, samples: np.ndarray, *, samp
         raise InputError(f"{name}: cannot write the WAV file ({exc})") from None
 
 
-def _sample_count(name: str, duration_s: float, sample_rate_hz: float) -> int:
+def sample_count(name: str, duration_s: float, sample_rate_hz: float) -> int:
+    """Samples in ``duration_s`` at ``sample_rate_hz``; InputError (naming ``name``) unless at least 2."""
     if not (isinstance(sample_rate_hz, (int, float)) and math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
         raise InputError(f"{name}: sample rate must be a positive number of Hz, got {sample_rate_hz!r}")
     if not (isinstance(duration_s, (int, float)) and math.isfinite(duration_s) and duration_s > 0):

@@ -21,6 +21,7 @@ from collections.abc import Iterator
 import numpy as np
 from scipy import fft
 
+from fieldtl.audio.signals import sample_count
 from fieldtl.bands import BandSpectrum, band_edges_hz, require_same_bands
 from fieldtl.errors import InputError
 
@@ -50,7 +51,7 @@ def noise_with_band_levels(levels_db: BandSpectrum, *, duration_s: float, sample
     reads the spectrum: a filter with skirts also picks up some of the neighbouring bands.
     """
     name = "noise_with_band_levels"
-    n_samples = _sample_count(name, duration_s, sample_rate_hz)
+    n_samples = sample_count(name, duration_s, sample_rate_hz)
     if not floor_below_db > 0.0:
         raise InputError(f"{name}: floor_below_db must be above 0 dB (math.inf for no floor), got {floor_below_db!r}")
     frequency_hz = fft.rfftfreq(n_samples, d=1.0 / sample_rate_hz)
@@ -90,7 +91,7 @@ def impulse_response_with_decay(reverberation_times_s: BandSpectrum, *, sample_r
     about 2.2/T Hz wide at half power, so a little energy reaches the neighbouring bands.
     """
     name = "impulse_response_with_decay"
-    n_samples = _sample_count(name, duration_s, sample_rate_hz)
+    n_samples = sample_count(name, duration_s, sample_rate_hz)
     times_s = _reverberation_times(name, reverberation_times_s)
     if not (math.isfinite(onset_s) and 0.0 <= onset_s < duration_s):
         raise InputError(f"{name}: onset_s must be from 0 s to below the duration, got {onset_s!r}")
@@ -137,7 +138,7 @@ def interrupted_noise_with_decay(band_levels_db: BandSpectrum, reverberation_tim
     if not (math.isfinite(steady_s) and steady_s > 0.0 and math.isfinite(decay_s) and decay_s > 0.0):
         raise InputError(f"{name}: steady_s and decay_s must be positive, got {steady_s!r} and {decay_s!r}")
     duration_s = steady_s + decay_s
-    n_samples = _sample_count(name, duration_s, sample_rate_hz)
+    n_samples = sample_count(name, duration_s, sample_rate_hz)
     frequency_hz = fft.rfftfreq(n_samples, d=1.0 / sample_rate_hz)
     bins = _band_bins(name, band_levels_db, frequency_hz, sample_rate_hz)
     mean_squares = _mean_squares(name, band_levels_db, level_offset_db)
@@ -167,7 +168,7 @@ def calibrator_tone(*, level_dbfs: float, duration_s: float, sample_rate_hz: flo
     the calibrator's frequency tolerance or distortion.
     """
     name = "calibrator_tone"
-    n_samples = _sample_count(name, duration_s, sample_rate_hz)
+    n_samples = sample_count(name, duration_s, sample_rate_hz)
     if not (math.isfinite(frequency_hz) and 0.0 < frequency_hz < sample_rate_hz / 2):
         raise InputError(f"{name}: frequency {frequency_hz!r} Hz must lie between 0 and half the sample rate")
     if not (math.isfinite(fade_in_s) and 0.0 <= fade_in_s < duration_s):
@@ -184,17 +185,6 @@ def calibrator_tone(*, level_dbfs: float, duration_s: float, sample_rate_hz: flo
     tone += rms * 10.0 ** (-noise_below_db / 20.0) * rng.standard_normal(n_samples)
     _require_no_clipping(name, tone)
     return tone
-
-
-def _sample_count(name: str, duration_s: float, sample_rate_hz: float) -> int:
-    if not (isinstance(sample_rate_hz, (int, float)) and math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
-        raise InputError(f"{name}: sample rate must be a positive number of Hz, got {sample_rate_hz!r}")
-    if not (isinstance(duration_s, (int, float)) and math.isfinite(duration_s) and duration_s > 0):
-        raise InputError(f"{name}: duration must be a positive number of seconds, got {duration_s!r}")
-    n_samples = round(duration_s * sample_rate_hz)
-    if n_samples < 2:
-        raise InputError(f"{name}: {duration_s!r} s at {sample_rate_hz:g} Hz is fewer than 2 samples")
-    return n_samples
 
 
 def _band_bins(name: str, spectrum: BandSpectrum, frequency_hz: np.ndarray, sample_rate_hz: float) -> list[slice]:

@@ -34,7 +34,6 @@ buildable or whether the materials suit it.
 from __future__ import annotations
 
 import math
-import tomllib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -42,6 +41,7 @@ from typing import Any, Literal
 
 from fieldtl.construction.materials import Material, bending_stiffness_nm, critical_frequency_hz, material_table
 from fieldtl.errors import InputError
+from fieldtl.tomlfile import read_toml_file
 
 Fill = Literal["none", "partial", "full"]
 Studs = Literal["independent", "timber", "steel", "none"]
@@ -170,17 +170,7 @@ def construction_from_layers(layers: Sequence[str], *, name: str | None = None, 
 
 def load_construction(path: str | Path) -> Construction:
     """Read and validate a construction file (format in the module docstring)."""
-    file = Path(path)
-    name = file.name
-    if not file.is_file():
-        raise InputError(f"{name}: construction file not found ({file})")
-    try:
-        data = tomllib.loads(file.read_text(encoding="utf-8"))
-    except UnicodeDecodeError:
-        raise InputError(f"{name}: not a text file") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"{name}: not valid TOML ({exc})") from None
-    return construction_from_dict(data, source_name=name)
+    return construction_from_dict(read_toml_file(path, what="construction file"), source_name=Path(path).name)
 
 
 def construction_from_dict(data: Mapping[str, Any], *, source_name: str) -> Construction:
