@@ -7,41 +7,28 @@ test (see the chromium_path fixture in conftest.py); no browser is ever download
 
 import os
 import re
-import socket
 import subprocess
 import sys
-import time
-import urllib.request
 from pathlib import Path
 
 import make_data
+from live_server import free_port, wait_until_healthy
 import pytest
 
 REPO = Path(__file__).resolve().parents[1]
 PHONE = {"width": 390, "height": 844}
 
 
-def _free_port() -> int:
-    with socket.socket() as probe:
-        probe.bind(("127.0.0.1", 0))
-        return probe.getsockname()[1]
-
-
 @pytest.fixture
 def app_url(tmp_path):
-    port = _free_port()
+    port = free_port()
     env = {k: v for k, v in os.environ.items() if k not in ("FIELDTL_ACCESS_CODE", "FIELDTL_NO_DEMO")}
     server = subprocess.Popen([sys.executable, "-m", "fieldtl.cli", "app", "--port", str(port), "--data-dir",
                                str(tmp_path / "store")], cwd=REPO, env=env,
                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     url = f"http://127.0.0.1:{port}"
     try:
-        for _ in range(240):
-            try:
-                urllib.request.urlopen(f"{url}/_stcore/health", timeout=1)
-                break
-            except OSError:
-                time.sleep(0.25)
+        wait_until_healthy(url)
         yield url
     finally:
         server.terminate()

@@ -7,14 +7,12 @@ import json
 import os
 import re
 import shutil
-import socket
 import subprocess
 import sys
-import time
-import urllib.request
 from pathlib import Path
 
 import make_data
+from live_server import free_port, wait_until_healthy
 import numpy as np
 import pytest
 import soundfile
@@ -242,12 +240,6 @@ st.button("Rerun")
 '''
 
 
-def free_port() -> int:
-    with socket.socket() as probe:
-        probe.bind(("127.0.0.1", 0))
-        return probe.getsockname()[1]
-
-
 @pytest.fixture
 def streamlit_app(tmp_path):
     (tmp_path / "app.py").write_text(APP.format(out=str(tmp_path)))
@@ -260,12 +252,7 @@ def streamlit_app(tmp_path):
         cwd=tmp_path, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     url = f"http://127.0.0.1:{port}"
     try:
-        for _ in range(120):
-            try:
-                urllib.request.urlopen(f"{url}/_stcore/health", timeout=1)
-                break
-            except OSError:
-                time.sleep(0.25)
+        wait_until_healthy(url)
         yield url, tmp_path
     finally:
         server.terminate()
