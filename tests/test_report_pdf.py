@@ -209,3 +209,16 @@ def test_report_without_any_single_number_has_no_chart():
     text = _flat("\n".join(_pages(assessment_to_pdf(bare))))
     assert "No single number could be formed, so there is no chart." in text
     assert "No single number could be formed (see the QA notes)." in text
+
+
+def test_construction_check_is_in_the_report():
+    # 100 mm dense concrete predicts Rw 45 (tests/test_construction.py checks the model against hand
+    # calculations); the worked example's field R' is 51.0 dB flat, so R'w = 51.
+    from fieldtl.construction import construction_from_layers
+
+    assessment, survey = _airborne()
+    survey = dataclasses.replace(survey, declared_construction=construction_from_layers(["concrete_dense:100"]))
+    assessment = assess(survey, takes_from_band_columns(survey.band_columns), calibrated=True)
+    text = _flat("\n".join(_pages(assessment_to_pdf(assessment))))
+    assert "Construction check" in text
+    assert "The declared build-up predicts Rw = 45 dB; the field measurement R'w = 51 dB" in text

@@ -24,13 +24,14 @@ from pathlib import Path
 import matplotlib
 from fontTools.ttLib import TTFont
 from fpdf import FPDF, FontFace, XPos, YPos
+from matplotlib.figure import Figure
 
 from fieldtl import __version__
 from fieldtl.assess import Assessment
 from fieldtl.errors import InputError
 from fieldtl.insulation import AirborneResult
 from fieldtl.report.export import band_columns, grouped_findings
-from fieldtl.report.plot import assessment_figure
+from fieldtl.report.plot import assessment_figure, construction_figure
 
 _FONT = "DejaVu"
 _FONT_DIR = Path(matplotlib.get_data_path()) / "fonts" / "ttf"
@@ -108,6 +109,7 @@ def assessment_to_pdf(assessment: Assessment, *, details: ReportDetails | None =
     _chart(pdf, assessment)
     _single_numbers(pdf, assessment)
     _verdict(pdf, assessment)
+    _construction_check(pdf, assessment)
     _qa_notes(pdf, assessment)
     pdf.ln(3)
     _paragraph(pdf, f"Produced with fieldtl {__version__}. End of report.", size=8)
@@ -342,13 +344,30 @@ def _chart(pdf: FPDF, assessment: Assessment) -> None:
         return
     # The title block already names the test; drawing the chart without it also keeps user text
     # away from matplotlib's mathtext parser (a title like "$\frac$" would fail to render).
-    figure = assessment_figure(dataclasses.replace(assessment, title=""))
+    _figure(pdf, "Chart", assessment_figure(dataclasses.replace(assessment, title="")))
+
+
+def _figure(pdf: FPDF, heading: str, figure: Figure) -> None:
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png", dpi=200)
     width_in, height_in = figure.get_size_inches()
     height_mm = _CHART_WIDTH_MM * height_in / width_in
-    _heading(pdf, "Chart", keep_with_mm=height_mm)
+    _heading(pdf, heading, keep_with_mm=height_mm)
     pdf.image(buffer, x=(pdf.w - _CHART_WIDTH_MM) / 2, w=_CHART_WIDTH_MM, h=height_mm)
+
+
+def _construction_check(pdf: FPDF, assessment: Assessment) -> None:
+    """Predicted R of the declared build-up beside the measured R' (only when one was declared)."""
+    check = assessment.construction_check
+    if check is None:
+        return
+    measured = "could not be rated" if check.measured_rating is None else \
+        f"R'w = {check.measured_rating.single_number_db} dB"
+    _figure(pdf, "Construction check", construction_figure(check))
+    _paragraph(pdf, f"The declared build-up predicts Rw = {check.predicted_rating.single_number_db} dB; the field "
+                    f"measurement {measured}; mean band gap {check.mean_gap_db:+.1f} dB (prediction minus field). "
+                    "The prediction is a simple model of the element alone (no flanking); its findings are "
+                    "listed with the QA notes.", size=8.5)
 
 
 def _single_numbers(pdf: FPDF, assessment: Assessment) -> None:
