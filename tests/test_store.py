@@ -544,3 +544,22 @@ def test_zip_bomb_is_refused_by_its_declared_size(tmp_path, store):
     with pytest.raises(InputError, match="declares 4000000 bytes, more than the 1000000 allowed"):
         import_project(store, bomb, max_member_bytes=1_000_000)
     assert store.list_projects() == ()
+
+
+def test_a_take_can_be_reanalysed_on_another_channel(tmp_path):
+    import numpy as np
+    import soundfile
+
+    from fieldtl.errors import InputError
+    from fieldtl.store import Store, TestSetup
+
+    path = tmp_path / "two.wav"
+    soundfile.write(str(path), np.column_stack([np.zeros(48_000), 0.1 * np.ones(48_000)]), 48_000, subtype="FLOAT")
+    with Store.open(":memory:") as store:
+        test = store.create_test(store.create_project("p").id,
+                                 TestSetup(title="t", test_type="airborne", receiving_volume_m3=30.0))
+        take = store.add_take(test.id, data=path.read_bytes(), original_name="two.wav", role="background")
+        assert store.set_take_channel(take.id, 1).channel == 1 == store.get_take(take.id).channel
+        with pytest.raises(InputError, match="channel 3 requested but the file has 2 channels"):
+            store.set_take_channel(take.id, 2)
+        assert store.get_take(take.id).channel == 1        # nothing changed by the refused request

@@ -356,6 +356,15 @@ class Store:
             _touch_project(db, self._test(db, take.test_id).project_id, utc_now())
         return replace(take, excluded=bool(excluded))
 
+    def set_take_channel(self, take_id: int, channel: int) -> TakeRecord:
+        """Analyse another channel of the take's file (0-based); InputError if the file has no such channel."""
+        take = self.get_take(take_id)
+        open_recording(self.take_path(take), channel=channel)   # raises for a channel the file does not have
+        with self._write() as db:
+            db.execute("UPDATE takes SET channel = ? WHERE id = ?", (int(channel), take_id))
+            _touch_project(db, self._test(db, take.test_id).project_id, utc_now())
+        return replace(take, channel=int(channel))
+
     def delete_take(self, take_id: int) -> None:
         """Delete the take's row; its audio file may be shared by content and stays until :meth:`prune_audio`."""
         with self._write() as db:

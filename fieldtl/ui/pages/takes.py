@@ -132,5 +132,15 @@ for take in reversed(takes):
         if keep == take.excluded:
             store.set_take_excluded(take.id, not keep)
             st.rerun()
+        if take.source == "upload":
+            chosen_channel = int(st.number_input("Channel", min_value=1, max_value=16, value=take.channel + 1,
+                                                 key=f"channel-take-{take.id}")) - 1
+            if chosen_channel != take.channel:
+                try:
+                    store.set_take_channel(take.id, chosen_channel)
+                except FieldTLError as exc:
+                    st.error(common.md(exc))
+                else:
+                    st.rerun()
 st.page_link("pages/results.py", label="See the results", icon="📊")
 common.cautions()
