@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from fieldtl import __version__
-from fieldtl.cautions import CAUTIONS
+from fieldtl.cautions import CAUTIONS, HEARING_CAUTION
 from fieldtl.errors import FieldTLError, InputError
 
 EXIT_BAD_INPUT = 2
@@ -301,7 +301,7 @@ def _run_app(args: argparse.Namespace) -> int:
 # --- test signals -------------------------------------------------------------------------------------
 
 def _run_signal(args: argparse.Namespace) -> int:
-    from fieldtl.audio.signals import HEARING_CAUTION, SweepSpec, exponential_sweep, pink_noise, white_noise, write_signal_wav
+    from fieldtl.audio.signals import SweepSpec, exponential_sweep, pink_noise, white_noise, write_signal_wav
 
     print(f"CAUTION: {HEARING_CAUTION}")
     if args.kind == "sweep":

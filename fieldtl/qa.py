@@ -264,7 +264,7 @@ def check_astm_scope(*, receiving_volume_m3: float, source_volume_m3: float | No
     volumes = [v for v in (receiving_volume_m3, source_volume_m3) if v is not None]
     if min(volumes) < 25.0:
         return (Finding("astm_small_room", "info",
-                        f"a room is smaller than 25 m3: ASTM E336 does not allow ATL/ASTC there, and NNIC "
+                        "a room is smaller than 25 m3: ASTM E336 does not allow ATL/ASTC there, and NNIC "
                         "assumes a receiving room of 25 m3 or more", "Report NIC only for ASTM purposes.",
                         clause="ASTM E336 scope"),)
     return ()

@@ -6,23 +6,18 @@ the measuring code.
 """
 
 import json
-import math
 
 import make_data
 import numpy as np
 import pytest
 
-from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, THIRD_OCTAVES_100_3150_HZ, BandSpectrum
+from fieldtl.bands import THIRD_OCTAVES_100_3150_HZ, BandSpectrum
 from fieldtl.cli import main
 from fieldtl.rating import rate_iso717_1, rate_iso717_2
 
-BANDS = THIRD_OCTAVES_50_5000_HZ
-S_M2, V2_M3, V1_M3 = 11.0, 40.0, 52.0
-# An invented masonry-like R' rising about 5 dB per octave, a pink-ish source, a quiet room.
-R_TRUE = BandSpectrum(BANDS, tuple(34.0 + 16.5 * math.log2(f / 50.0) / 3.3 for f in BANDS), "dB", "R'")
-L1_TRUE = BandSpectrum(BANDS, tuple(96.0 - 0.3 * i for i in range(len(BANDS))), "dB", "L1")
-B_TRUE = BandSpectrum(BANDS, tuple(26.0 - 1.0 * i for i in range(len(BANDS))), "dB", "B")
-T_TRUE = BandSpectrum(BANDS, tuple(0.75 - 0.015 * i for i in range(len(BANDS))), "s", "T")
+BANDS = make_data.WALL_BANDS
+S_M2, V2_M3, V1_M3 = make_data.WALL_S_M2, make_data.WALL_V2_M3, make_data.WALL_V1_M3
+R_TRUE, L1_TRUE, B_TRUE, T_TRUE = make_data.WALL_R_TRUE, make_data.WALL_L1_TRUE, make_data.WALL_B_TRUE, make_data.WALL_T_TRUE
 
 
 @pytest.fixture(scope="module")

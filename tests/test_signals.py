@@ -8,9 +8,10 @@ import pytest
 import soundfile
 from scipy import signal
 
-from fieldtl.audio.signals import (HEARING_CAUTION, SweepSpec, checked_audio, exponential_sweep,
+from fieldtl.audio.signals import (SweepSpec, checked_audio, exponential_sweep,
                                    impulse_response_from_sweep, inverse_sweep, pink_noise, white_noise,
                                    write_signal_wav)
+from fieldtl.cautions import HEARING_CAUTION
 from fieldtl.errors import InputError
 
 FS = 48_000

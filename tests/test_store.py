@@ -25,7 +25,7 @@ from hypothesis import strategies as hs
 
 import fieldtl.store.schema as schema
 from fieldtl.assess import assess
-from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, THIRD_OCTAVES_100_3150_HZ, BandSpectrum
+from fieldtl.bands import THIRD_OCTAVES_100_3150_HZ
 from fieldtl.errors import InputError, StoreError
 from fieldtl.measure import measure_survey
 from fieldtl.store import (MIGRATIONS, SCHEMA_VERSION, Store, TestSetup, default_data_dir, default_database_path,
@@ -290,12 +290,8 @@ def test_test_type_cannot_change_under_its_takes(store, test_id):
 
 # --- the calculator's view -------------------------------------------------------------------------
 
-BANDS = THIRD_OCTAVES_50_5000_HZ
-S_M2, V2_M3, V1_M3 = 11.0, 40.0, 52.0
-R_TRUE = BandSpectrum(BANDS, tuple(34.0 + 16.5 * math.log2(f / 50.0) / 3.3 for f in BANDS), "dB", "R'")
-L1_TRUE = BandSpectrum(BANDS, tuple(96.0 - 0.3 * i for i in range(len(BANDS))), "dB", "L1")
-B_TRUE = BandSpectrum(BANDS, tuple(26.0 - 1.0 * i for i in range(len(BANDS))), "dB", "B")
-T_TRUE = BandSpectrum(BANDS, tuple(0.75 - 0.015 * i for i in range(len(BANDS))), "s", "T")
+S_M2, V2_M3, V1_M3 = make_data.WALL_S_M2, make_data.WALL_V2_M3, make_data.WALL_V1_M3
+R_TRUE, L1_TRUE, B_TRUE, T_TRUE = make_data.WALL_R_TRUE, make_data.WALL_L1_TRUE, make_data.WALL_B_TRUE, make_data.WALL_T_TRUE
 
 
 def test_survey_for_test_is_what_the_calculator_measures(store, tmp_path):
@@ -330,7 +326,7 @@ def test_survey_for_test_is_what_the_calculator_measures(store, tmp_path):
     t_s = T_TRUE.as_array()
     d_db = R_TRUE.as_array() - 10 * np.log10(S_M2 / (0.16 * V2_M3 / t_s))       # ISO 16283-1: R' = D + 10 lg(S/A)
     dnt_db = d_db + 10 * np.log10(t_s / 0.5)                                    # DnT = D + 10 lg(T/T0), T0 = 0.5 s
-    required = [BANDS.index(f) for f in THIRD_OCTAVES_100_3150_HZ]
+    required = [make_data.WALL_BANDS.index(f) for f in THIRD_OCTAVES_100_3150_HZ]
     assert measured.calibrated
     assert np.abs(result.standardized_level_difference_db.as_array()[required] - dnt_db[required]).max() < 0.5
 

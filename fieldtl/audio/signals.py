@@ -16,7 +16,6 @@ import numpy as np
 import soundfile
 from scipy import fft
 
-from fieldtl.cautions import HEARING_CAUTION  # re-exported: offered wherever signals are
 from fieldtl.errors import InputError
 
 

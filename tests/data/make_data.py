@@ -62,6 +62,23 @@ if __name__ == "__main__":
 
 # --- whole synthetic surveys with a known truth (end-to-end tests) ---------------------------------
 
+def _invented_wall():
+    """An invented masonry-like wall and rooms: R' rising about 5 dB per octave, a pink-ish source,
+    a quiet receiving room. Returns (bands, S m2, V receiving m3, V source m3, R', L1, B, T)."""
+    from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, BandSpectrum
+
+    bands = THIRD_OCTAVES_50_5000_HZ
+    n = len(bands)
+    return (bands, 11.0, 40.0, 52.0,
+            BandSpectrum(bands, tuple(34.0 + 16.5 * np.log2(f / 50.0) / 3.3 for f in bands), "dB", "R'"),
+            BandSpectrum(bands, tuple(96.0 - 0.3 * i for i in range(n)), "dB", "L1"),
+            BandSpectrum(bands, tuple(26.0 - 1.0 * i for i in range(n)), "dB", "B"),
+            BandSpectrum(bands, tuple(0.75 - 0.015 * i for i in range(n)), "s", "T"))
+
+
+WALL_BANDS, WALL_S_M2, WALL_V2_M3, WALL_V1_M3, WALL_R_TRUE, WALL_L1_TRUE, WALL_B_TRUE, WALL_T_TRUE = _invented_wall()
+
+
 class SurveyWriter:
     """Writes takes, decays and a calibrator tone into ``folder`` and the survey file naming them.
 
