@@ -108,6 +108,8 @@ def _parser() -> argparse.ArgumentParser:
                                            "(default: a new random code, printed here)")
     app.add_argument("--cert", type=Path, help="TLS certificate (PEM); phones only allow recording over https")
     app.add_argument("--key", type=Path, help="TLS private key (PEM) for --cert")
+    app.add_argument("--https", action="store_true",
+                     help="serve over https with a self-signed certificate kept in the data folder")
     app.set_defaults(run=_run_app)
 
     demo = sub.add_parser("demo", help="assess the invented demo survey in sample_audio/")
@@ -277,11 +279,17 @@ def _run_app(args: argparse.Namespace) -> int:
 
     if (args.cert is None) != (args.key is None):
         raise InputError("app: give both --cert and --key, or neither")
+    if args.https and args.cert is not None:
+        raise InputError("app: --https makes its own certificate; leave out --cert and --key")
     for path in (args.cert, args.key):
         if path is not None and not path.is_file():
             raise InputError(f"{path.name}: file not found ({path})")
     data_dir = (args.data_dir or default_data_dir()).expanduser().resolve()
     data_dir.mkdir(parents=True, exist_ok=True)
+    if args.https:
+        from fieldtl.tls import self_signed_certificate
+        args.cert, args.key = self_signed_certificate(data_dir / "tls")
+        print("https with a self-signed certificate: each browser asks once whether to trust it")
     env = dict(os.environ, FIELDTL_DATA_DIR=str(data_dir))
     if args.host not in LOCAL_HOSTS:
         env["FIELDTL_ACCESS_CODE"] = args.access_code or secrets.token_hex(3)
