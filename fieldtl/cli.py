@@ -122,15 +122,12 @@ def _parser() -> argparse.ArgumentParser:
 
 def _run_bands(args: argparse.Namespace) -> int:
     from fieldtl.analysis.levels import analyse_levels
-    from fieldtl.audio.calibration import calibration_from_tone
-    from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording, read_samples
+    from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording
+    from fieldtl.measure import calibrate_file
 
     recording = open_recording(args.file, channel=_channel(args.channel, args.file))
-    calibration = None
-    if args.calibration is not None:
-        cal_recording = open_recording(args.calibration)
-        calibration = calibration_from_tone(read_samples(cal_recording), sample_rate_hz=cal_recording.sample_rate_hz,
-                                            source_name=cal_recording.name, reference_db=args.calibrator_db)
+    calibration = (None if args.calibration is None
+                   else calibrate_file(args.calibration, 0, args.calibrator_db))
     stats = SampleStats(sample_rate_hz=recording.sample_rate_hz, source_name=recording.name)
     with _progress_bar(recording.name, recording.duration_s) as progress:
         analysis = analyse_levels(stats.watch(iter_blocks(recording)), sample_rate_hz=recording.sample_rate_hz,
@@ -155,7 +152,7 @@ def _run_bands(args: argparse.Namespace) -> int:
             "laeq_db": _round(analysis.laeq_db, 1), "lceq_db": _round(analysis.lceq_db, 1),
             "lafmax_db": _round(analysis.lafmax_db, 1), "lasmax_db": _round(analysis.lasmax_db, 1),
             "duration_s": round(recording.duration_s, 3),
-            "warnings": [_warning(f) for f in findings],
+            "warnings": [f.as_json() for f in findings],
         })
     return 0
 
@@ -187,7 +184,7 @@ def _run_decay(args: argparse.Namespace) -> int:
             "frequencies_hz": _frequencies(analysis.nominal_hz),
             **{f"{name}_s": list(spectrum.rounded(3)) for name, spectrum in columns.items()},
             "averaging": analysis.averaging,
-            "warnings": [_warning(f) for f in findings],
+            "warnings": [f.as_json() for f in findings],
         })
     return 0
 
@@ -342,16 +339,12 @@ def _channel(channel: int, file: Path) -> int:
 
 
 def _frequencies(nominal_hz: Sequence[float]) -> list[float | int]:
-    return [int(f) if float(f).is_integer() else f for f in nominal_hz]
+    from fieldtl.report.export import json_number
+    return [json_number(f) for f in nominal_hz]
 
 
 def _round(value: float, digits: int) -> float | None:
     return round(value, digits) if math.isfinite(value) else None
-
-
-def _warning(finding: Any) -> dict[str, Any]:
-    return {"code": finding.code, "band_hz": finding.band_hz, "message": finding.message,
-            "severity": finding.severity, "action": finding.action}
 
 
 def _print_findings(findings: Sequence[Any]) -> None:

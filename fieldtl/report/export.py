@@ -58,7 +58,7 @@ def assessment_to_json(assessment: Assessment) -> dict[str, Any]:
         "title": assessment.title,
         "test_type": assessment.test_type,
         "calibrated": assessment.calibrated,
-        "frequencies_hz": [_number(f) for f in assessment.result.nominal_hz],
+        "frequencies_hz": [json_number(f) for f in assessment.result.nominal_hz],
         "bands": {name: _rounded(spectrum) for name, spectrum in columns.items()},
         "limited": list(assessment.result.limited),
         "ratings": {r.descriptor: _rating_json(r, assessment.table_uncertainty_db.get(r.descriptor))
@@ -90,7 +90,7 @@ def assessment_to_csv(assessment: Assessment) -> str:
     writer.writerow(["frequency_hz", *columns, "limited"])
     rows = zip(assessment.result.nominal_hz, *(_rounded(s) for s in columns.values()), assessment.result.limited)
     for frequency_hz, *values, limited in rows:
-        writer.writerow([_number(frequency_hz), *("" if v is None else v for v in values), "yes" if limited else ""])
+        writer.writerow([json_number(frequency_hz), *("" if v is None else v for v in values), "yes" if limited else ""])
     return out.getvalue()
 
 
@@ -114,7 +114,7 @@ def assessment_to_text(assessment: Assessment) -> str:
             if limited[i] and name in upper_bound_columns | lower_bound_columns:
                 text = ("≤" if name in upper_bound_columns else "≥") + text
             cells.append(f"{text:>8}")
-        lines.append(f"{_number(frequency_hz):>6} " + " ".join(cells))
+        lines.append(f"{json_number(frequency_hz):>6} " + " ".join(cells))
     lines.append("≥ / ≤ mark a band limited by background noise: the true value is at least / at most this.")
     lines += ["", "Single numbers"]
     for rating in assessment.ratings:
@@ -136,7 +136,7 @@ def assessment_to_text(assessment: Assessment) -> str:
     if assessment.findings:
         lines += ["", "Quality findings (most serious first; repeats in other bands folded together)"]
         for finding, count, bands in grouped_findings(assessment.findings):
-            more = f" (and {count - 1} more: {', '.join(f'{_number(b)}' for b in bands[1:])} Hz)" if count > 1 else ""
+            more = f" (and {count - 1} more: {', '.join(f'{json_number(b)}' for b in bands[1:])} Hz)" if count > 1 else ""
             lines.append(f"  {finding.severity.upper():<7} {finding.code}: {finding.message}{more}")
             if finding.action:
                 lines.append(f"          → {finding.action}")
@@ -165,5 +165,6 @@ def grouped_findings(findings: tuple[Finding, ...]) -> list[tuple[Finding, int, 
     return sorted(folded, key=lambda group: _SEVERITY_ORDER.get(group[0].severity, 3))
 
 
-def _number(value: float) -> float | int:
+def json_number(value: float) -> float | int:
+    """A band frequency as JSON and tables show it: 1000, not 1000.0; 31.5 stays 31.5."""
     return int(value) if float(value).is_integer() else float(value)

@@ -115,8 +115,7 @@ with st.spinner("Reading the takes…"):
             summaries[take.id] = cached.take_measurement(spec, offset_db)
         except FieldTLError as exc:
             summaries[take.id] = exc
-background = background_level_db([s[0] for tid, s in summaries.items()
-                                  if isinstance(s, tuple) and not next(t for t in takes if t.id == tid).excluded])
+background = background_level_db([summaries[t.id][0] for t in included if isinstance(summaries.get(t.id), tuple)])
 for take in reversed(takes):
     with st.container(border=True):
         st.write(f"**{common.ROLE_NAMES[take.role]}**, position {take.speaker} · {common.md(take.original_name)}")
