@@ -26,6 +26,7 @@ from fieldtl.insulation.common import (
     absorption_area_m2,
     analysis_bands_hz,
     average_reverberation_time,
+    freeze_sequences,
     ignored_bands_rule,
     require_positive,
     room_levels,
@@ -45,11 +46,6 @@ _COMBINATION_RULES = {
 }
 
 
-def _as_tuple(instance: object, *names: str) -> None:
-    for name in names:
-        object.__setattr__(instance, name, tuple(getattr(instance, name)))
-
-
 @dataclass(frozen=True, slots=True)
 class LoudspeakerPosition:
     """Levels measured with the loudspeaker at one position (or all loudspeakers running together).
@@ -65,7 +61,7 @@ class LoudspeakerPosition:
     receiving_corner_levels_db: tuple[BandSpectrum, ...] = ()
 
     def __post_init__(self) -> None:
-        _as_tuple(self, "source_levels_db", "receiving_levels_db", "source_corner_levels_db",
+        freeze_sequences(self, "source_levels_db", "receiving_levels_db", "source_corner_levels_db",
                   "receiving_corner_levels_db")
 
 
@@ -86,7 +82,7 @@ class AirborneMeasurement:
     reverberation_time_kind: ReverberationKind = "decays"
 
     def __post_init__(self) -> None:
-        _as_tuple(self, "positions", "background_levels_db", "reverberation_times_s",
+        freeze_sequences(self, "positions", "background_levels_db", "reverberation_times_s",
                   "background_corner_levels_db")
 
 

@@ -126,6 +126,12 @@ class BandSpread:
     decay_count: int
 
 
+def freeze_sequences(instance: object, *names: str) -> None:
+    """Store the named fields of a frozen dataclass as tuples (lists passed in stay hashable values)."""
+    for name in names:
+        object.__setattr__(instance, name, tuple(getattr(instance, name)))
+
+
 def require_positive(value: float, what: str) -> float:
     """Return ``value`` as float, or raise InputError naming ``what`` unless finite and > 0."""
     number = float(value)

@@ -25,6 +25,7 @@ from fieldtl.insulation.common import (
     absorption_area_m2,
     analysis_bands_hz,
     average_reverberation_time,
+    freeze_sequences,
     ignored_bands_rule,
     require_positive,
     room_levels,
@@ -45,8 +46,7 @@ class TappingPosition:
     receiving_corner_levels_db: tuple[BandSpectrum, ...] = ()
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "receiving_levels_db", tuple(self.receiving_levels_db))
-        object.__setattr__(self, "receiving_corner_levels_db", tuple(self.receiving_corner_levels_db))
+        freeze_sequences(self, "receiving_levels_db", "receiving_corner_levels_db")
 
 
 @dataclass(frozen=True, slots=True)
@@ -60,8 +60,8 @@ class ImpactMeasurement:
     reverberation_time_kind: ReverberationKind = "decays"
 
     def __post_init__(self) -> None:
-        for name in ("positions", "background_levels_db", "reverberation_times_s", "background_corner_levels_db"):
-            object.__setattr__(self, name, tuple(getattr(self, name)))
+        freeze_sequences(self, "positions", "background_levels_db", "reverberation_times_s",
+                         "background_corner_levels_db")
 
 
 @dataclass(frozen=True, slots=True)
