@@ -6,12 +6,12 @@ import io
 import json
 import os
 import re
-import shutil
 import subprocess
 import sys
 from pathlib import Path
 
 import make_data
+from conftest import node_executable
 from live_server import free_port, wait_until_healthy
 import numpy as np
 import pytest
@@ -23,7 +23,6 @@ from fieldtl.ui.recorder import COMPONENT_DIR, RecordedTake, take_from_payload
 REPO = Path(__file__).resolve().parents[1]
 INDEX_HTML = (COMPONENT_DIR / "index.html").read_text()
 RECORDER_JS = (COMPONENT_DIR / "recorder.js").read_text()
-NODE = shutil.which("node")
 
 
 def wav_bytes(samples, *, sample_rate_hz=48_000, subtype="PCM_24", file_format="WAV"):
@@ -157,10 +156,9 @@ def test_start_and_stop_buttons_are_touch_sized():
 # ------------------------------------------------------------------ the JS helpers, run in node
 
 def run_node(script: str):
-    if NODE is None:
-        pytest.skip("node is not installed")
+    node = node_executable()   # tests/conftest.py: skips locally, fails under CI=true
     code = f"const r = require({json.dumps(str(COMPONENT_DIR / 'recorder.js'))});\n{script}"
-    done = subprocess.run([NODE, "-e", code], capture_output=True, text=True, check=True)
+    done = subprocess.run([node, "-e", code], capture_output=True, text=True, check=True)
     return json.loads(done.stdout)
 
 
