@@ -52,8 +52,8 @@ def test_good_survey(tmp_path):
 
 
 @pytest.mark.parametrize("change, message", [
-    (("receiving_volume_m3 = 31.5", "receiving_volume_m3 = -3"), "receiving_volume_m3 must be a positive number, got -3"),
-    (("separating_area_m2 = 10.8", "separating_area_m2 = 0"), "separating_area_m2 must be a positive number, got 0"),
+    (("receiving_volume_m3 = 31.5", "receiving_volume_m3 = -3"), "receiving_volume_m3 must be a number from 1 to 100000 m3, got -3"),
+    (("separating_area_m2 = 10.8", "separating_area_m2 = 0"), "separating_area_m2 must be a number from 0.1 to 10000 m2, got 0"),
     (('type = "airborne"', 'type = "airborne"\ncolour = "red"'), "unknown key 'colour' in [test]"),
     (('role = "background"', 'role = "backgorund"'), "recording 3 role 'backgorund' is not one of"),
     (('method = "impulse"', 'method = "clap"'), "recording 4 method must be one of impulse, interrupted, sweep"),
@@ -89,7 +89,7 @@ def test_pasted_levels_with_semicolons_and_decimal_commas():
     ("frequency_hz,L1\n110,80\n", "110 Hz is not a nominal one-third-octave frequency"),
     ("frequency_hz,X9\n100,80\n", "column 'X9' is not one of"),
     ("frequency_hz,L1\n100,loud\n", "row 2, column 'L1': 'loud' is not a number"),
-    ("frequency_hz,T\n100,-0.5\n", "row 2, column 'T': '-0.5' is out of range"),
+    ("frequency_hz,T\n100,-0.5\n", "row 2, column 'T': '-0.5' is outside 0.1 to 10 s"),
     ("frequency_hz,L1\n125,80\n100,80\n", "ascending frequency order"),
 ])
 def test_bad_pasted_levels(text, message):
