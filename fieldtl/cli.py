@@ -104,8 +104,9 @@ def _parser() -> argparse.ArgumentParser:
                      help="address to serve on (default 127.0.0.1; use 0.0.0.0 for a phone on the site Wi-Fi)")
     app.add_argument("--port", type=int, default=8501)
     app.add_argument("--data-dir", type=Path, help="folder for the project store (default: your user data folder)")
-    app.add_argument("--access-code", help="code asked of every browser when served beyond this machine "
-                                           "(default: a new random code, printed here)")
+    app.add_argument("--access-code", help="code asked of every browser, at least 40 bits (e.g. k7m2-q9tx-4hvw); "
+                                           "also read from FIELDTL_ACCESS_CODE (default when served beyond this "
+                                           "machine: a new random code, printed here)")
     app.add_argument("--cert", type=Path, help="TLS certificate (PEM); phones only allow recording over https")
     app.add_argument("--key", type=Path, help="TLS private key (PEM) for --cert")
     app.add_argument("--https", action="store_true",
@@ -269,10 +270,8 @@ LOCAL_HOSTS = ("127.0.0.1", "localhost", "::1")
 
 
 def _run_app(args: argparse.Namespace) -> int:
-    import secrets
-    import subprocess
-
     from fieldtl.store import default_data_dir
+    from fieldtl.ui import access
 
     if (args.cert is None) != (args.key is None):
         raise InputError("app: give both --cert and --key, or neither")
@@ -281,26 +280,36 @@ def _run_app(args: argparse.Namespace) -> int:
     for path in (args.cert, args.key):
         if path is not None and not path.is_file():
             raise InputError(f"{path.name}: file not found ({path})")
+    chosen = args.access_code if args.access_code is not None else os.environ.get(access.ENV_VAR) or None
+    if chosen is not None:
+        access.check_chosen_code(chosen, source="--access-code" if args.access_code is not None else access.ENV_VAR)
     data_dir = (args.data_dir or default_data_dir()).expanduser().resolve()
     data_dir.mkdir(parents=True, exist_ok=True)
     if args.https:
         from fieldtl.tls import self_signed_certificate
         args.cert, args.key = self_signed_certificate(data_dir / "tls")
         print("https with a self-signed certificate: each browser asks once whether to trust it")
-    env = dict(os.environ, FIELDTL_DATA_DIR=str(data_dir))
-    if args.host not in LOCAL_HOSTS:
-        env["FIELDTL_ACCESS_CODE"] = args.access_code or secrets.token_hex(3)
-        print(f"Access code for other devices: {env['FIELDTL_ACCESS_CODE']}")
+    env = {k: v for k, v in os.environ.items() if k != access.ENV_VAR}
+    env["FIELDTL_DATA_DIR"] = str(data_dir)
+    code = chosen or (access.new_code() if args.host not in LOCAL_HOSTS else None)
+    if code is not None:
+        env[access.ENV_VAR] = code
+        print(f"Access code for every browser: {code}  (spaces, dashes and capitals do not matter)")
     app_path = Path(__file__).resolve().parent / "ui" / "app.py"
     root = app_path.parents[2]          # the repository, whose .streamlit/config.toml sets upload limits
     command = [sys.executable, "-m", "streamlit", "run", str(app_path), "--server.address", args.host,
                "--server.port", str(args.port), "--server.headless", "true", "--browser.gatherUsageStats", "false"]
     if args.cert is not None:
-        command += ["--server.sslCertFile", str(args.cert), "--server.sslKeyFile", str(args.key)]
+        command += ["--server.sslCertFile", str(args.cert.resolve()), "--server.sslKeyFile", str(args.key.resolve())]
     scheme = "https" if args.cert else "http"
     print(f"fieldtl app on {scheme}://{args.host}:{args.port}  (store: {data_dir}); Ctrl+C stops it")
     print(f"CAUTION: {CAUTIONS[0]}\nCAUTION: {CAUTIONS[1]}")
-    return subprocess.call(command, env=env, cwd=root if (root / ".streamlit" / "config.toml").is_file() else None)
+    sys.stdout.flush()
+    sys.stderr.flush()
+    if (root / ".streamlit" / "config.toml").is_file():
+        os.chdir(root)
+    # The server replaces this process: SIGTERM and SIGINT reach it directly and no child is left behind.
+    os.execve(sys.executable, command, env)
 
 
 # --- test signals -------------------------------------------------------------------------------------

@@ -42,7 +42,7 @@ def test_demo_opens_on_first_start_and_reaches_a_verdict(data_dir):
     _button(at, "INVENTED DEMO").click().run()
     assert at.title[0].value == "Takes" and not at.exception
     assert "Checklist: " in at.get("progress")[0].proto.text
-    at.switch_page("pages/results.py").run()
+    at.switch_page("views/results.py").run()
     assert not at.exception, [e.value for e in at.exception]
     assert "PASS" in at.success[0].value and "DnT,w" in at.success[0].value
     ratings = at.table[0].value
@@ -85,7 +85,7 @@ def test_create_project_and_test_upload_takes_and_read_the_verdict(data_dir, tmp
     _button(at, "Save test").click().run()
     assert "Saved" in at.success[0].value, [e.value for e in at.error]
 
-    at.switch_page("pages/takes.py").run()
+    at.switch_page("views/takes.py").run()
     before = at.get("progress")[0].proto.text
     _upload(at, "calibration", [folder / "cal.wav"])
     _upload(at, "source", sorted(folder.glob("src_*.wav")))
@@ -99,7 +99,7 @@ def test_create_project_and_test_upload_takes_and_read_the_verdict(data_dir, tmp
         test = store.list_tests(store.list_projects()[0].id)[0]
         assert store.missing_roles(test.id) == ()
 
-    at.switch_page("pages/results.py").run()
+    at.switch_page("views/results.py").run()
     assert not at.exception, [e.value for e in at.exception]
     verdicts = at.success or at.warning or at.error
     assert "DnT,w" in verdicts[0].value

@@ -1,20 +1,21 @@
 """fieldtl's Streamlit app: the entrypoint draws the access gate, the navigation, and runs a page.
 
-Start it with ``fieldtl app`` (which sets FIELDTL_DATA_DIR and, when served beyond this machine,
-FIELDTL_ACCESS_CODE). Pages hold widgets only; everything they compute comes from the core.
+Start it with ``fieldtl app`` (which sets FIELDTL_DATA_DIR and, when served beyond this machine or
+when one is chosen, FIELDTL_ACCESS_CODE). Until a session has entered the code, this script draws
+only the gate and stops before ``st.navigation``; each page in ``views/`` checks the gate again.
+Pages hold widgets only; everything they compute comes from the core.
 """
 
 from __future__ import annotations
 
-import hmac
-import os
 from pathlib import Path
 
 import streamlit as st
 
-from fieldtl.ui import state
+from fieldtl.ui import gate
 
-PAGES = Path(__file__).resolve().parent / "pages"
+# Not named "pages": Streamlit would find a folder of that name by itself and serve each file in it.
+PAGES = Path(__file__).resolve().parent / "views"
 
 # Phone-first: large touch targets, tables that never overflow, one column below 640 px.
 _STYLE = """
@@ -27,26 +28,11 @@ div[data-baseweb="select"] > div, .stTextInput input, .stNumberInput input { min
 """
 
 
-def _access_granted() -> bool:
-    code = os.environ.get("FIELDTL_ACCESS_CODE", "")
-    if not code or st.session_state.get(state.ACCESS_OK):
-        return True
-    st.title("fieldtl")
-    st.write("This app is shared on the network. Enter the access code shown where it was started.")
-    entered = st.text_input("Access code", type="password")
-    if entered:
-        if hmac.compare_digest(entered.strip(), code):
-            st.session_state[state.ACCESS_OK] = True
-            st.rerun()
-        st.error("That code is not right.")
-    return False
-
-
 def main() -> None:
     st.set_page_config(page_title="fieldtl", page_icon="🧱", layout="centered")
     st.markdown(_STYLE, unsafe_allow_html=True)   # our own constant CSS; no user text here
-    if not _access_granted():
-        st.stop()
+    if not gate.passed():
+        gate.draw()      # the gate alone: no navigation, so no page and no page list is sent
     navigation = st.navigation({
         "Site work": [
             st.Page(PAGES / "projects.py", title="Projects", icon="📁", default=True),

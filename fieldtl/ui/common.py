@@ -1,12 +1,69 @@
-"""Bits every page shares: the open project/test guard, plain-word role names, the caution footer."""
+"""Bits every page shares: the error fence, text bounds, the open project/test guard, plain-word
+role names, the caution footer."""
 
 from __future__ import annotations
+
+import contextlib
+import logging
+from collections.abc import Iterator
 
 import streamlit as st
 
 from fieldtl.cautions import CAUTIONS
+from fieldtl.errors import FieldTLError
 from fieldtl.store import Project, TestRecord
-from fieldtl.ui import cached, state
+from fieldtl.ui import cached, gate, state
+
+_LOG = logging.getLogger("fieldtl.ui")
+
+# Longest user texts typed into the app's forms (characters). Streamlit counts and stops typing at
+# these (see ``text_field``). Sizes are common practice:
+# a name fits a report heading, a note fits a report page.
+NAME_CHARS = 120          # project, client, engineer, organisation, test title, requirement
+ADDRESS_CHARS = 200
+DATE_CHARS = 40
+NOTE_CHARS = 4_000        # construction in words, instruments, positions, notes
+BUILD_UP_CHARS = 20_000   # the declared build-up in the construction-file format
+BAND_TABLE_CHARS = 50_000 # pasted band levels: 21 bands x 30 columns of "123.4," fit many times
+
+
+@contextlib.contextmanager
+def fenced() -> Iterator[None]:
+    """Run a page body so that an error of one project's data shows as one line, not a traceback.
+
+    Streamlit's own stop and rerun signals are not Exceptions and pass through. The full
+    traceback goes to the server's log only.
+    """
+    try:
+        yield
+    except FieldTLError as exc:
+        st.error(md(exc))
+        cautions()
+    except Exception as exc:   # noqa: BLE001 - the fence exists to catch what nothing else did
+        _LOG.exception("page error")
+        st.error(f"This page could not show the open project ({type(exc).__name__}). "
+                 "Other projects are not affected; try another test or project.")
+        cautions()
+
+
+def text_field(label: str, value: str = "", *, limit: int, area: bool = False, **options: object) -> str:
+    """A text input (or area) of at most ``limit`` characters, with a line saying so when text was cut.
+
+    Streamlit stops typing at ``max_chars`` and cuts longer values on the server too. A stored
+    text already longer (from an older archive) keeps its length rather than being cut on save.
+    """
+    most = max(limit, len(value))
+    widget = st.text_area if area else st.text_input
+    text = widget(label, value, max_chars=most, **options)
+    if len(text) >= most and text != value:
+        st.caption(f"{label}: at most {most} characters; anything longer was cut.")
+    return text
+
+
+def download_button(label: str, data: object, **options: object) -> None:
+    """A download of project data, drawn only for a session that passed the access gate."""
+    if gate.passed():
+        st.download_button(label, data, **options)
 
 ROLE_NAMES: dict[str, str] = {
     "source": "Source room level (loudspeaker on)",
@@ -51,7 +108,7 @@ def require_test() -> tuple[Project, TestRecord]:
         test = next((t for t in cached.store().list_tests(project.id) if t.id == test_id), None)
     if project is None or test is None:
         st.info("Open a project and a test first.")
-        st.page_link("pages/projects.py", label="Go to Projects", icon="📁")
+        st.page_link("views/projects.py", label="Go to Projects", icon="📁")
         cautions()
         st.stop()
     return project, test

@@ -7,48 +7,50 @@ from fieldtl.construction.predict import predict
 from fieldtl.errors import FieldTLError
 from fieldtl.report.plot import construction_figure
 from fieldtl.store.sqlite import declared_construction
-from fieldtl.ui import cached, common
+from fieldtl.ui import cached, common, gate
 
-store = cached.store()
-project, test = common.require_test()
-st.title("Construction check")
-common.heading(project, test)
-try:
-    construction = declared_construction(test.setup, "declared build-up")
-except FieldTLError as exc:
-    st.error(common.md(exc))
-    st.stop()
-if construction is None:
-    st.info("Enter the declared build-up in Test set-up to compare it with the measurement.")
-    st.page_link("pages/setup.py", label="Go to Test set-up", icon="📐")
+gate.require_access()
+with common.fenced():
+    store = cached.store()
+    project, test = common.require_test()
+    st.title("Construction check")
+    common.heading(project, test)
+    try:
+        construction = declared_construction(test.setup, "declared build-up")
+    except FieldTLError as exc:
+        st.error(common.md(exc))
+        st.stop()
+    if construction is None:
+        st.info("Enter the declared build-up in Test set-up to compare it with the measurement.")
+        st.page_link("views/setup.py", label="Go to Test set-up", icon="📐")
+        common.cautions()
+        st.stop()
+
+    prediction = predict(construction)
+    st.write(f"**{common.md(construction.name)}**")
+    st.write(f"Predicted Rw {prediction.rating.single_number_db} dB; surface mass "
+             f"{prediction.surface_mass_kg_m2:.0f} kg/m², critical frequency {prediction.critical_frequency_hz:.0f} Hz"
+             + (f", mass-air-mass resonance {prediction.mass_air_mass_resonance_hz:.0f} Hz"
+                if prediction.mass_air_mass_resonance_hz else "") + ".")
+    st.caption(common.md(prediction.method))
+    check = None
+    try:
+        check = cached.assessment(store.survey_for_test(test.id)).construction_check
+    except FieldTLError as exc:
+        st.caption(f"No measured R' yet: {common.md(exc)}")
+    if check is not None:
+        st.pyplot(construction_figure(check))
+        st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in check.gap_db.nominal_hz],
+                                   "R predicted": list(check.predicted_db.rounded(1)),
+                                   "R' measured": list(check.measured_db.rounded(1)),
+                                   "gap": list(check.gap_db.rounded(1))}), hide_index=True)
+        for finding in check.findings:
+            st.warning(f"**{finding.code.replace('_', ' ')}**: {common.md(finding.message)} "
+                       f"{common.md(finding.action)}")
+    else:
+        st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in prediction.r_db.nominal_hz],
+                                   "R predicted": list(prediction.r_db.rounded(1))}), hide_index=True)
+    with st.expander("What the prediction leaves out"):
+        for note in prediction.notes:
+            st.write(f"- {common.md(note)}")
     common.cautions()
-    st.stop()
-
-prediction = predict(construction)
-st.write(f"**{common.md(construction.name)}**")
-st.write(f"Predicted Rw {prediction.rating.single_number_db} dB; surface mass "
-         f"{prediction.surface_mass_kg_m2:.0f} kg/m², critical frequency {prediction.critical_frequency_hz:.0f} Hz"
-         + (f", mass-air-mass resonance {prediction.mass_air_mass_resonance_hz:.0f} Hz"
-            if prediction.mass_air_mass_resonance_hz else "") + ".")
-st.caption(common.md(prediction.method))
-check = None
-try:
-    check = cached.assessment(store.survey_for_test(test.id)).construction_check
-except FieldTLError as exc:
-    st.caption(f"No measured R' yet: {common.md(exc)}")
-if check is not None:
-    st.pyplot(construction_figure(check))
-    st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in check.gap_db.nominal_hz],
-                               "R predicted": list(check.predicted_db.rounded(1)),
-                               "R' measured": list(check.measured_db.rounded(1)),
-                               "gap": list(check.gap_db.rounded(1))}), hide_index=True)
-    for finding in check.findings:
-        st.warning(f"**{finding.code.replace('_', ' ')}**: {common.md(finding.message)} "
-                   f"{common.md(finding.action)}")
-else:
-    st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in prediction.r_db.nominal_hz],
-                               "R predicted": list(prediction.r_db.rounded(1))}), hide_index=True)
-with st.expander("What the prediction leaves out"):
-    for note in prediction.notes:
-        st.write(f"- {common.md(note)}")
-common.cautions()

@@ -8,83 +8,88 @@ from fieldtl.construction import MATERIALS
 from fieldtl.errors import FieldTLError
 from fieldtl.store import TestSetup
 from fieldtl.store.sqlite import CONSTRUCTION_SETTING, declared_construction
-from fieldtl.ui import cached, common, state
+from fieldtl.ui import cached, common, gate, state
 from fieldtl.uncertainty import EXAMPLE_REQUIREMENTS, SITUATIONS
 
-store = cached.store()
-project = common.open_project()
-st.title("Test set-up")
-if project is None:
-    st.info("Choose or create a project first.")
-    st.page_link("pages/projects.py", label="Go to Projects", icon="📁")
-    common.cautions()
-    st.stop()
-
-tests = store.list_tests(project.id)
-choices = [None] + [t.id for t in tests]
-current = state.test_id() if state.test_id() in choices else None
-chosen = st.selectbox("Test", choices, index=choices.index(current),
-                      format_func=lambda i: "New test" if i is None else next(t.setup.title for t in tests if t.id == i))
-state.open_test(chosen)
-existing = next((t.setup for t in tests if t.id == chosen), None)
-old = existing or TestSetup(title="", test_type="airborne", receiving_volume_m3=30.0)
 
 
 def _optional(value: float) -> float | None:
     return None if value == 0 else value
 
 
-with st.form("test-setup"):
-    title = st.text_input("Test name (rooms and element)", old.title,
-                          placeholder="Bedroom 4 to bedroom 7, level 2")
-    test_type = st.radio("What is tested", ["airborne", "impact"], index=["airborne", "impact"].index(old.test_type),
-                         format_func={"airborne": "Airborne (wall or floor, loudspeaker)",
-                                      "impact": "Impact (floor, tapping machine)"}.get, horizontal=True)
-    area = st.number_input("Separating area S, m² (0 if there is no common element)", min_value=0.0,
-                           value=float(old.separating_area_m2 or 0.0), step=0.5)
-    receiving = st.number_input("Receiving room volume, m³", min_value=0.1, value=float(old.receiving_volume_m3), step=1.0)
-    source = st.number_input("Source room volume, m³ (0 if not known)", min_value=0.0,
-                             value=float(old.source_volume_m3 or 0.0), step=1.0)
-    construction = st.text_area("Construction (as built, in words)", old.construction, height=80)
-    requirement = st.text_input("Requirement to check (your local code decides)", old.requirement or "",
-                                placeholder="DnT,w + Ctr >= 45")
-    lab_rw = st.number_input("Laboratory Rw of the element, dB (0 if not declared)", min_value=0.0,
-                             value=float(old.element_lab_rw_db or 0.0), step=1.0)
-    situation = st.radio("Uncertainty situation (ISO 12999-1)", list(SITUATIONS),
-                         index=list(SITUATIONS).index(old.uncertainty_situation),
-                         format_func=lambda k: f"{k}: {SITUATIONS[k]}")
-    calibrator_db = st.number_input("Calibrator level, dB", min_value=60.0, max_value=150.0,
-                                    value=float(old.calibrator_db), step=1.0)
-    construction_toml = st.text_area(
-        "Declared build-up for the construction check (optional, construction-file format)",
-        old.settings.get(CONSTRUCTION_SETTING, ""), height=120,
-        placeholder='[[leaf]]\nlayers = ["plaster_gypsum:13", "concrete_block_dense:215", "plaster_gypsum:13"]')
-    saved = st.form_submit_button("Save test")
+gate.require_access()
+with common.fenced():
+    store = cached.store()
+    project = common.open_project()
+    st.title("Test set-up")
+    if project is None:
+        st.info("Choose or create a project first.")
+        st.page_link("views/projects.py", label="Go to Projects", icon="📁")
+        common.cautions()
+        st.stop()
 
-if saved:
-    settings = dict(old.settings)
-    if construction_toml.strip():
-        settings[CONSTRUCTION_SETTING] = construction_toml
-    else:
-        settings.pop(CONSTRUCTION_SETTING, None)
-    try:
-        setup = dataclasses.replace(old, title=title, test_type=test_type, separating_area_m2=_optional(area),
-                                    receiving_volume_m3=receiving, source_volume_m3=_optional(source),
-                                    construction=construction, requirement=requirement.strip() or None,
-                                    element_lab_rw_db=_optional(lab_rw), uncertainty_situation=situation,
-                                    calibrator_db=calibrator_db, settings=settings)
-        declared_construction(setup, "declared build-up")   # refuse a bad construction before saving
-        record = store.update_test(chosen, setup) if chosen is not None else store.create_test(project.id, setup)
-    except FieldTLError as exc:
-        st.error(common.md(exc))
-    else:
-        state.open_test(record.id)
-        st.success("Saved. Next: record or upload the takes.")
-        st.page_link("pages/takes.py", label="Go to Takes", icon="🎙️")
+    tests = store.list_tests(project.id)
+    choices = [None] + [t.id for t in tests]
+    current = state.test_id() if state.test_id() in choices else None
+    chosen = st.selectbox("Test", choices, index=choices.index(current),
+                          format_func=lambda i: "New test" if i is None else next(t.setup.title for t in tests if t.id == i))
+    state.open_test(chosen)
+    existing = next((t.setup for t in tests if t.id == chosen), None)
+    old = existing or TestSetup(title="", test_type="airborne", receiving_volume_m3=30.0)
 
-with st.expander("Example requirements (examples only: your local code decides)"):
-    for label, text in EXAMPLE_REQUIREMENTS.items():
-        st.write(f"`{text}` — {label}")
-with st.expander("Materials known to the construction check"):
-    st.write(", ".join(f"`{name}`" for name in sorted(MATERIALS)))
-common.cautions()
+
+    with st.form("test-setup"):
+        title = common.text_field("Test name (rooms and element)", old.title, limit=common.NAME_CHARS,
+                                  placeholder="Bedroom 4 to bedroom 7, level 2")
+        test_type = st.radio("What is tested", ["airborne", "impact"], index=["airborne", "impact"].index(old.test_type),
+                             format_func={"airborne": "Airborne (wall or floor, loudspeaker)",
+                                          "impact": "Impact (floor, tapping machine)"}.get, horizontal=True)
+        area = st.number_input("Separating area S, m² (0 if there is no common element)", min_value=0.0,
+                               value=float(old.separating_area_m2 or 0.0), step=0.5)
+        receiving = st.number_input("Receiving room volume, m³", min_value=0.1, value=float(old.receiving_volume_m3), step=1.0)
+        source = st.number_input("Source room volume, m³ (0 if not known)", min_value=0.0,
+                                 value=float(old.source_volume_m3 or 0.0), step=1.0)
+        construction = common.text_field("Construction (as built, in words)", old.construction,
+                                         limit=common.NOTE_CHARS, area=True, height=80)
+        requirement = common.text_field("Requirement to check (your local code decides)", old.requirement or "",
+                                       limit=common.NAME_CHARS, placeholder="DnT,w + Ctr >= 45")
+        lab_rw = st.number_input("Laboratory Rw of the element, dB (0 if not declared)", min_value=0.0,
+                                 value=float(old.element_lab_rw_db or 0.0), step=1.0)
+        situation = st.radio("Uncertainty situation (ISO 12999-1)", list(SITUATIONS),
+                             index=list(SITUATIONS).index(old.uncertainty_situation),
+                             format_func=lambda k: f"{k}: {SITUATIONS[k]}")
+        calibrator_db = st.number_input("Calibrator level, dB", min_value=60.0, max_value=150.0,
+                                        value=float(old.calibrator_db), step=1.0)
+        construction_toml = common.text_field(
+            "Declared build-up for the construction check (optional, construction-file format)",
+            old.settings.get(CONSTRUCTION_SETTING, ""), limit=common.BUILD_UP_CHARS, area=True, height=120,
+            placeholder='[[leaf]]\nlayers = ["plaster_gypsum:13", "concrete_block_dense:215", "plaster_gypsum:13"]')
+        saved = st.form_submit_button("Save test")
+
+    if saved:
+        settings = dict(old.settings)
+        if construction_toml.strip():
+            settings[CONSTRUCTION_SETTING] = construction_toml
+        else:
+            settings.pop(CONSTRUCTION_SETTING, None)
+        try:
+            setup = dataclasses.replace(old, title=title, test_type=test_type, separating_area_m2=_optional(area),
+                                        receiving_volume_m3=receiving, source_volume_m3=_optional(source),
+                                        construction=construction, requirement=requirement.strip() or None,
+                                        element_lab_rw_db=_optional(lab_rw), uncertainty_situation=situation,
+                                        calibrator_db=calibrator_db, settings=settings)
+            declared_construction(setup, "declared build-up")   # refuse a bad construction before saving
+            record = store.update_test(chosen, setup) if chosen is not None else store.create_test(project.id, setup)
+        except FieldTLError as exc:
+            st.error(common.md(exc))
+        else:
+            state.open_test(record.id)
+            st.success("Saved. Next: record or upload the takes.")
+            st.page_link("views/takes.py", label="Go to Takes", icon="🎙️")
+
+    with st.expander("Example requirements (examples only: your local code decides)"):
+        for label, text in EXAMPLE_REQUIREMENTS.items():
+            st.write(f"`{text}` — {label}")
+    with st.expander("Materials known to the construction check"):
+        st.write(", ".join(f"`{name}`" for name in sorted(MATERIALS)))
+    common.cautions()
