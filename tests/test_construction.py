@@ -220,14 +220,14 @@ def test_construction_file_reads(tmp_path):
 
 @pytest.mark.parametrize(("text", "words"), [
     ('[[leaf]]\nlayers = ["concrete:100"]\n', "unknown material 'concrete'"),
-    ('[[leaf]]\nlayers = ["concrete_dense:0"]\n', "thickness must be a positive number"),
-    ('[[leaf]]\nlayers = ["concrete_dense:-5"]\n', "thickness must be a positive number"),
+    ('[[leaf]]\nlayers = ["concrete_dense:0"]\n', "thickness must be a number from 0.1 to 1000 mm"),
+    ('[[leaf]]\nlayers = ["concrete_dense:-5"]\n', "thickness must be a number from 0.1 to 1000 mm"),
     ('[[leaf]]\nlayers = ["concrete_dense"]\n', "MATERIAL:THICKNESS_MM"),
     ('colour = "red"\n[[leaf]]\nlayers = ["concrete_dense:100"]\n', "unknown key 'colour'"),
     ('[[leaf]]\nlayers = ["concrete_dense:100"\n', "not valid TOML"),
     ('[[leaf]]\nlayers = ["gypsum_board:12.5"]\n[[leaf]]\nlayers = ["gypsum_board:12.5"]\n',
      "need a [cavity] table"),
-    (_GOOD.replace("depth_mm = 75", "depth_mm = 0"), "depth_mm must be positive"),
+    (_GOOD.replace("depth_mm = 75", "depth_mm = 0"), "depth_mm must be a number from 1 to 2000 mm"),
     (_GOOD.replace('"timber"', '"aluminium"'), "studs must be one of"),
     ('[[material]]\nname = "steel"\ndensity_kg_m3 = 1\nyoungs_modulus_gpa = 1\npoisson_ratio = 0.3\n'
      'loss_factor = 0.01\n[[leaf]]\nlayers = ["steel:1"]\n', "built-in material"),

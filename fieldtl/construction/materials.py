@@ -19,7 +19,9 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
 
+from fieldtl import validate
 from fieldtl.errors import InputError
+from fieldtl.validate import DENSITY_KG_M3, LOSS_FACTOR, POISSON_RATIO, YOUNGS_MODULUS_GPA
 
 SPEED_OF_SOUND_M_S = 343.0  # in air at about 20 °C (common textbook value, from memory)
 
@@ -36,14 +38,15 @@ class Material:
     source: str
 
     def __post_init__(self) -> None:
-        for label, value in (("density_kg_m3", self.density_kg_m3), ("youngs_modulus", self.youngs_modulus_pa),
-                             ("loss_factor", self.loss_factor)):
-            if not (math.isfinite(value) and value > 0):
-                raise InputError(f"material {self.name!r}: {label} must be a positive number, got {value!r}")
-        if not (math.isfinite(self.poisson_ratio) and 0.0 <= self.poisson_ratio < 0.5):
-            raise InputError(f"material {self.name!r}: poisson_ratio must be in [0, 0.5), got {self.poisson_ratio!r}")
-        if self.loss_factor >= 1.0:
-            raise InputError(f"material {self.name!r}: loss_factor must be below 1, got {self.loss_factor!r}")
+        what = f"material {validate.echo(self.name)}:"
+        validate.text(self.name, "material name", empty=False)
+        validate.number(self.density_kg_m3, f"{what} density_kg_m3", low=DENSITY_KG_M3[0], high=DENSITY_KG_M3[1])
+        validate.number(self.youngs_modulus_pa, f"{what} youngs_modulus_pa", low=YOUNGS_MODULUS_GPA[0] * 1e9,
+                        high=YOUNGS_MODULUS_GPA[1] * 1e9)
+        validate.number(self.poisson_ratio, f"{what} poisson_ratio", low=POISSON_RATIO[0], high=POISSON_RATIO[1],
+                        high_open=True)
+        validate.number(self.loss_factor, f"{what} loss_factor", low=LOSS_FACTOR[0], high=LOSS_FACTOR[1],
+                        low_open=True, high_open=True)
 
 
 _MEMORY = "typical value (from memory)"

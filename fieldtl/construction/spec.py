@@ -33,15 +33,17 @@ buildable or whether the materials suit it.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Literal
 
+from fieldtl import validate
 from fieldtl.construction.materials import Material, bending_stiffness_nm, critical_frequency_hz, material_table
 from fieldtl.errors import InputError
 from fieldtl.tomlfile import read_toml_file
+from fieldtl.validate import (AREA_M2, CAVITY_MM, DENSITY_KG_M3, LAYER_MM, LOSS_FACTOR, POISSON_RATIO,
+                              STUD_SPACING_MM, YOUNGS_MODULUS_GPA, check_keys, echo, file_label)
 
 Fill = Literal["none", "partial", "full"]
 Studs = Literal["independent", "timber", "steel", "none"]
@@ -53,6 +55,8 @@ _TOP_KEYS = {"name", "area_m2", "material", "leaf", "cavity"}
 _MATERIAL_KEYS = {"name", "density_kg_m3", "youngs_modulus_gpa", "poisson_ratio", "loss_factor", "source"}
 _LEAF_KEYS = {"layers"}
 _CAVITY_KEYS = {"depth_mm", "fill", "studs", "stud_spacing_mm"}
+MAX_LAYERS = 20          # bonded layers of one leaf
+MAX_MATERIALS = 50       # [[material]] tables in one file
 
 
 @dataclass(frozen=True, slots=True)
@@ -61,9 +65,8 @@ class Layer:
     thickness_mm: float
 
     def __post_init__(self) -> None:
-        if not (math.isfinite(self.thickness_mm) and self.thickness_mm > 0):
-            raise InputError(f"layer {self.material.name}: thickness must be a positive number of mm, "
-                             f"got {self.thickness_mm!r}")
+        validate.number(self.thickness_mm, f"layer {self.material.name}: thickness", low=LAYER_MM[0],
+                        high=LAYER_MM[1], unit=" mm")
 
     @property
     def surface_mass_kg_m2(self) -> float:
@@ -83,8 +86,8 @@ class Leaf:
     layers: tuple[Layer, ...]
 
     def __post_init__(self) -> None:
-        if not self.layers:
-            raise InputError("leaf: needs at least one layer")
+        if not 1 <= len(self.layers) <= MAX_LAYERS:
+            raise InputError(f"leaf: needs 1 to {MAX_LAYERS} layers, got {len(self.layers)}")
 
     @property
     def surface_mass_kg_m2(self) -> float:
@@ -115,12 +118,11 @@ class Cavity:
     stud_spacing_mm: float = DEFAULT_STUD_SPACING_MM
 
     def __post_init__(self) -> None:
-        if self.fill not in FILLS or self.studs not in STUDS:
-            raise InputError(f"cavity: fill must be one of {', '.join(FILLS)} and studs one of "
-                             f"{', '.join(STUDS)}, got {self.fill!r} and {self.studs!r}")
-        for label, value in (("depth_mm", self.depth_mm), ("stud_spacing_mm", self.stud_spacing_mm)):
-            if not (math.isfinite(value) and value > 0):
-                raise InputError(f"cavity: {label} must be a positive number, got {value!r}")
+        validate.choice(self.fill, FILLS, "cavity: fill")
+        validate.choice(self.studs, STUDS, "cavity: studs")
+        validate.number(self.depth_mm, "cavity: depth_mm", low=CAVITY_MM[0], high=CAVITY_MM[1], unit=" mm")
+        validate.number(self.stud_spacing_mm, "cavity: stud_spacing_mm", low=STUD_SPACING_MM[0],
+                        high=STUD_SPACING_MM[1], unit=" mm")
 
 
 @dataclass(frozen=True, slots=True)
@@ -133,26 +135,30 @@ class Construction:
     area_m2: float | None = None
 
     def __post_init__(self) -> None:
+        validate.text(self.name, "construction name", max_chars=validate.NOTE_CHARS)
         if len(self.leaves) not in (1, 2):
-            raise InputError(f"construction {self.name!r}: one or two leaves, got {len(self.leaves)}")
+            raise InputError(f"construction {echo(self.name)}: one or two leaves, got {len(self.leaves)}")
         if (len(self.leaves) == 2) != (self.cavity is not None):
-            raise InputError(f"construction {self.name!r}: a cavity goes with two leaves, and only with two")
+            raise InputError(f"construction {echo(self.name)}: a cavity goes with two leaves, and only with two")
+        if self.area_m2 is not None:
+            validate.number(self.area_m2, "construction: area_m2", low=AREA_M2[0], high=AREA_M2[1], unit=" m2")
 
 
 def parse_layer(text: str, materials: Mapping[str, Material]) -> Layer:
     """"MATERIAL:THICKNESS_MM" → Layer; InputError naming the text if it is not that."""
-    name, sep, thickness = str(text).partition(":")
+    validate.text(text, "layer", max_chars=validate.NAME_CHARS)
+    name, sep, thickness = text.partition(":")
     name = name.strip()
     if not sep:
-        raise InputError(f"layer {text!r}: expected MATERIAL:THICKNESS_MM, e.g. \"gypsum_board:12.5\"")
+        raise InputError(f"layer {echo(text)}: expected MATERIAL:THICKNESS_MM, e.g. \"gypsum_board:12.5\"")
     if name not in materials:
-        raise InputError(f"layer {text!r}: unknown material {name!r} (known: {', '.join(sorted(materials))})")
+        known = ", ".join(sorted(materials))
+        raise InputError(f"layer {echo(text)}: unknown material {echo(name)} (known: {validate.clean(known, 300)})")
     try:
         thickness_mm = float(thickness)
     except ValueError:
-        raise InputError(f"layer {text!r}: thickness {thickness.strip()!r} is not a number of mm") from None
-    if not (math.isfinite(thickness_mm) and thickness_mm > 0):
-        raise InputError(f"layer {text!r}: thickness must be a positive number of mm")
+        raise InputError(f"layer {echo(text)}: thickness {echo(thickness.strip())} is not a number of mm") from None
+    validate.number(thickness_mm, f"layer {echo(text)}: thickness", low=LAYER_MM[0], high=LAYER_MM[1], unit=" mm")
     return Layer(materials[name], thickness_mm)
 
 
@@ -161,8 +167,8 @@ def construction_from_layers(layers: Sequence[str], *, name: str | None = None, 
     """A single leaf of bonded layers from texts like ["concrete_dense:100", "plaster_gypsum:13"]."""
     if not layers:
         raise InputError("construction: give at least one layer as MATERIAL:THICKNESS_MM")
-    if area_m2 is not None and not (math.isfinite(area_m2) and area_m2 > 0):
-        raise InputError(f"construction: area {area_m2!r} m2 must be a positive number")
+    if len(layers) > MAX_LAYERS:
+        raise InputError(f"construction: {len(layers)} layers; at most {MAX_LAYERS}")
     materials = material_table(extra_materials)
     leaf = Leaf(tuple(parse_layer(text, materials) for text in layers))
     return Construction(name or leaf.describe(), (leaf,), None, area_m2)
@@ -170,12 +176,12 @@ def construction_from_layers(layers: Sequence[str], *, name: str | None = None, 
 
 def load_construction(path: str | Path) -> Construction:
     """Read and validate a construction file (format in the module docstring)."""
-    return construction_from_dict(read_toml_file(path, what="construction file"), source_name=Path(path).name)
+    return construction_from_dict(read_toml_file(path, what="construction file"), source_name=file_label(path))
 
 
 def construction_from_dict(data: Mapping[str, Any], *, source_name: str) -> Construction:
     """Validate parsed construction data (from TOML or the app) into a Construction."""
-    _only_keys(data, _TOP_KEYS, "the top level", source_name)
+    check_keys(data, _TOP_KEYS, "the top level", source_name)
     materials = material_table(_own_materials(data.get("material", []), source_name))
     leaves_data = data.get("leaf")
     if not isinstance(leaves_data, list) or len(leaves_data) not in (1, 2):
@@ -187,33 +193,40 @@ def construction_from_dict(data: Mapping[str, Any], *, source_name: str) -> Cons
     if len(leaves) == 1 and cavity_data is not None:
         raise InputError(f"{source_name}: [cavity] needs a second [[leaf]]")
     cavity = None if cavity_data is None else _cavity(cavity_data, source_name)
-    area_m2 = _optional_number(data, "area_m2", "the top level", source_name)
-    title = data.get("name", "")
-    if not isinstance(title, str):
-        raise InputError(f"{source_name}: name must be text")
+    area_m2 = validate.optional_number(data, "area_m2", f"{source_name}:", low=AREA_M2[0], high=AREA_M2[1],
+                                       unit=" m2")
+    title = validate.text(data.get("name", ""), f"{source_name}: name", max_chars=validate.NOTE_CHARS)
     return Construction(title or " | ".join(leaf.describe() for leaf in leaves), leaves, cavity, area_m2)
 
 
 def _own_materials(entries: Any, source_name: str) -> dict[str, Material]:
     if not isinstance(entries, list):
         raise InputError(f"{source_name}: [[material]] must be an array of tables")
+    if len(entries) > MAX_MATERIALS:
+        raise InputError(f"{source_name}: {len(entries)} [[material]] tables; at most {MAX_MATERIALS}")
     own: dict[str, Material] = {}
     for i, entry in enumerate(entries, start=1):
         where = f"[[material]] {i}"
         if not isinstance(entry, dict):
             raise InputError(f"{source_name}: {where} must be a table")
-        _only_keys(entry, _MATERIAL_KEYS, where, source_name)
+        check_keys(entry, _MATERIAL_KEYS, where, source_name)
         name = entry.get("name")
-        if not isinstance(name, str) or not name or ":" in name:
+        if not isinstance(name, str) or not name.strip() or ":" in name:
             raise InputError(f"{source_name}: {where} needs a name without ':'")
+        validate.text(name, f"{source_name}: {where} name", max_chars=validate.NAME_CHARS)
         if name in own:
-            raise InputError(f"{source_name}: {where}: material {name!r} is defined twice")
-        numbers = {key: _required_number(entry, key, where, source_name)
-                   for key in ("density_kg_m3", "youngs_modulus_gpa", "poisson_ratio", "loss_factor")}
+            raise InputError(f"{source_name}: {where}: material {echo(name)} is defined twice")
+        numbers = {key: validate.required_number(entry, key, f"{source_name}: {where}", low=low, high=high,
+                                                 low_open=key == "loss_factor", high_open=high_open)
+                   for key, (low, high), high_open in (("density_kg_m3", DENSITY_KG_M3, False),
+                                                       ("youngs_modulus_gpa", YOUNGS_MODULUS_GPA, False),
+                                                       ("poisson_ratio", POISSON_RATIO, True),
+                                                       ("loss_factor", LOSS_FACTOR, True))}
+        source = validate.text(entry.get("source", f"from {source_name}"), f"{source_name}: {where} source",
+                               max_chars=validate.NOTE_CHARS)
         try:
             own[name] = Material(name, numbers["density_kg_m3"], numbers["youngs_modulus_gpa"] * 1e9,
-                                 numbers["poisson_ratio"], numbers["loss_factor"],
-                                 str(entry.get("source", f"from {source_name}")))
+                                 numbers["poisson_ratio"], numbers["loss_factor"], source)
         except InputError as exc:
             raise InputError(f"{source_name}: {where}: {exc}") from None
     try:
@@ -227,10 +240,12 @@ def _leaf(entry: Any, number: int, materials: Mapping[str, Material], source_nam
     where = f"[[leaf]] {number}"
     if not isinstance(entry, dict):
         raise InputError(f"{source_name}: {where} must be a table")
-    _only_keys(entry, _LEAF_KEYS, where, source_name)
+    check_keys(entry, _LEAF_KEYS, where, source_name)
     layers = entry.get("layers")
     if not isinstance(layers, list) or not layers:
         raise InputError(f"{source_name}: {where} needs layers = [\"MATERIAL:THICKNESS_MM\", ...]")
+    if len(layers) > MAX_LAYERS:
+        raise InputError(f"{source_name}: {where}: {len(layers)} layers; at most {MAX_LAYERS}")
     try:
         return Leaf(tuple(parse_layer(text, materials) for text in layers))
     except InputError as exc:
@@ -240,38 +255,13 @@ def _leaf(entry: Any, number: int, materials: Mapping[str, Material], source_nam
 def _cavity(entry: Any, source_name: str) -> Cavity:
     if not isinstance(entry, dict):
         raise InputError(f"{source_name}: [cavity] must be a table")
-    _only_keys(entry, _CAVITY_KEYS, "[cavity]", source_name)
-    depth_mm = _required_number(entry, "depth_mm", "[cavity]", source_name)
-    fill = entry.get("fill", "none")
-    if fill not in FILLS:
-        raise InputError(f"{source_name}: [cavity] fill must be one of {', '.join(FILLS)}, got {fill!r}")
-    studs = entry.get("studs")
-    if studs not in STUDS:
-        raise InputError(f"{source_name}: [cavity] studs must be one of {', '.join(STUDS)}, got {studs!r}")
+    check_keys(entry, _CAVITY_KEYS, "[cavity]", source_name)
+    where = f"{source_name}: [cavity]"
+    depth_mm = validate.required_number(entry, "depth_mm", where, low=CAVITY_MM[0], high=CAVITY_MM[1], unit=" mm")
+    fill = validate.choice(entry.get("fill", "none"), FILLS, f"{where} fill")
+    studs = validate.choice(entry.get("studs"), STUDS, f"{where} studs")
     if "stud_spacing_mm" in entry and studs != "timber":
-        raise InputError(f"{source_name}: [cavity] stud_spacing_mm applies to timber studs only")
-    spacing_mm = _optional_number(entry, "stud_spacing_mm", "[cavity]", source_name)
+        raise InputError(f"{where} stud_spacing_mm applies to timber studs only")
+    spacing_mm = validate.optional_number(entry, "stud_spacing_mm", where, low=STUD_SPACING_MM[0],
+                                          high=STUD_SPACING_MM[1], unit=" mm")
     return Cavity(depth_mm, fill, studs, DEFAULT_STUD_SPACING_MM if spacing_mm is None else spacing_mm)
-
-
-def _required_number(table: Mapping[str, Any], key: str, where: str, source_name: str) -> float:
-    """A positive finite number (the Poisson ratio may be zero)."""
-    if key not in table:
-        raise InputError(f"{source_name}: {where} {key} is required")
-    value = table[key]
-    if isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
-        raise InputError(f"{source_name}: {where} {key} must be a number, got {value!r}")
-    if value < 0 or (value == 0 and key != "poisson_ratio"):
-        raise InputError(f"{source_name}: {where} {key} must be positive, got {value!r}")
-    return float(value)
-
-
-def _optional_number(table: Mapping[str, Any], key: str, where: str, source_name: str) -> float | None:
-    return _required_number(table, key, where, source_name) if key in table else None
-
-
-def _only_keys(table: Mapping[str, Any], allowed: set[str], where: str, source_name: str) -> None:
-    unknown = sorted(set(table) - allowed)
-    if unknown:
-        raise InputError(f"{source_name}: unknown key {unknown[0]!r} in {where} "
-                         f"(allowed: {', '.join(sorted(allowed))})")
