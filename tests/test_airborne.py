@@ -22,6 +22,8 @@ from fieldtl.insulation import (
     airborne_insulation,
     background_corrected_db,
     combine_source_positions,
+    corner_level_db,
+    low_frequency_applies,
     low_frequency_level_db,
     octave_level_difference_db,
     octave_limited,
@@ -143,28 +145,56 @@ def test_loudspeaker_positions_are_combined_per_position_in_the_pipeline():
     assert any("energy basis" in rule for rule in energy.rules_applied)
 
 
-# --- low-frequency procedure (facts sheet 1.3, combination from memory, medium-high confidence) ---
+# --- low-frequency procedure (ISO 16283-1 Formulae (12), (13), as transcribed; verify against a licensed copy) ---
 
-def test_low_frequency_combination_worked_example():
-    # facts sheet 1.3 [C]: L = 60, L_corner = 66 -> 10 lg((2·10^6.6 + 10^6)/3) = 64.75 dB
-    assert float(low_frequency_level_db(60.0, [66.0, 61.0, 58.0, 63.0])) == pytest.approx(64.75, abs=0.005)
+LF_60_66_DB = 10 * math.log10((10 ** 6.6 + 2 * 10 ** 6.0) / 3)  # 62.9966 dB, Formula (13) by hand
+
+
+def test_low_frequency_combination_weighs_the_corner_one_third():
+    # ISO 16283-1 Formula (13): L_LF = 10 lg[(10^(0.1 L_Corner) + 2·10^(0.1 L))/3].
+    # L = 60.0, L_Corner = 66.0: (3 981 071.7 + 2 000 000) / 3 = 1 993 690.6 -> 62.9966 dB.
+    # (The issue text quotes 62.35 dB for this pair; the formula it prints gives 63.00 dB.)
+    assert float(low_frequency_level_db(60.0, 66.0)) == pytest.approx(62.9966, abs=0.0005)
+    # the wrong (2:1 corner) weighting would give 64.75 dB: make sure that is not what we compute
+    assert float(low_frequency_level_db(60.0, 66.0)) < 64.0
+    # equal levels stay equal (analytic)
+    assert float(low_frequency_level_db(60.0, 60.0)) == pytest.approx(60.0)
+
+
+def test_corner_level_is_the_energy_average_of_each_positions_highest_corner():
+    # ISO 16283-1 Formula (12): per position the highest corner per band (bands may come from
+    # different corners), then the energy average over positions.
+    position_1 = np.array([[60.0, 61.0], [63.0, 58.0]])   # maxima 63, 61
+    position_2 = np.array([[66.0, 55.0], [64.0, 57.0]])   # maxima 66, 57
+    expected = [10 * math.log10((10 ** 6.3 + 10 ** 6.6) / 2), 10 * math.log10((10 ** 6.1 + 10 ** 5.7) / 2)]
+    assert corner_level_db([position_1, position_2]) == pytest.approx(expected)   # 64.75, 59.45
+    assert corner_level_db([position_1]) == pytest.approx([63.0, 61.0])
+
+
+@pytest.mark.parametrize(("volume_m3", "applies"), [
+    (24.4, True), (24.49, True), (24.5, False), (25.0, False), (10.0, True), (100.0, False)])
+def test_low_frequency_trigger_rounds_the_volume_to_whole_cubic_metres(volume_m3, applies):
+    # ISO 16283-1/-2: the volume rounded to the nearest m3 is smaller than 25 m3 (24.5 rounds to 25)
+    assert low_frequency_applies(volume_m3) is applies
 
 
 def lf_measurement(*, receiving_corners, background_corners) -> AirborneMeasurement:
     position = LoudspeakerPosition([flat(95.0)] * 5, [flat(60.0)] * 5,
                                    receiving_corner_levels_db=[flat(v) for v in receiving_corners])
     return AirborneMeasurement([position], [flat(20.0)] * 5, decays(0.5),
-                               background_corner_levels_db=[flat(v) for v in background_corners])
+                               background_corner_levels_db=[flat(v) for v in background_corners],
+                               octave_63_reverberation_times_s=(0.5,))
 
 
 def test_low_frequency_procedure_in_a_small_receiving_room():
     measurement = lf_measurement(receiving_corners=(66.0, 64.0, 62.0, 60.0), background_corners=(20.0,) * 4)
     small = airborne_insulation(measurement, Rooms(60.0, 20.0, 10.0))  # 20 m3 < 25 m3
     for hz in (50.0, 63.0, 80.0):
-        assert small.receiving_level_db.at(hz) == pytest.approx(64.75, abs=0.005)  # L_LF from 60 and 66
-        assert small.level_difference_db.at(hz) == pytest.approx(95.0 - 64.75, abs=0.005)
+        assert small.receiving_level_db.at(hz) == pytest.approx(LF_60_66_DB, abs=0.005)  # L_LF from 60 and 66
+        assert small.level_difference_db.at(hz) == pytest.approx(95.0 - LF_60_66_DB, abs=0.005)
     assert small.receiving_level_db.at(100) == pytest.approx(60.0)  # 100 Hz and up: default procedure only
-    large = airborne_insulation(measurement, Rooms(60.0, 25.0, 10.0))  # 25 m3 is not "under 25"
+    assert any("Formulae (12), (13)" in rule for rule in small.rules_applied)
+    large = airborne_insulation(measurement, Rooms(60.0, 24.5, 10.0))  # 24.5 m3 rounds to 25: not under 25
     assert large.receiving_level_db.at(63) == pytest.approx(60.0)
     assert any("corner levels not used" in rule for rule in large.rules_applied)
 
@@ -172,10 +202,10 @@ def test_low_frequency_procedure_in_a_small_receiving_room():
 def test_receiving_corners_are_background_corrected_one_by_one():
     # corner 1: 67 over its background 61 (margin 6 -> 67 - 1.3 = 65.7, a limit);
     # corner 2: 66 over 30 (no correction). The highest AFTER correction is corner 2 (66), not a
-    # limit -> L_LF = 64.75 and the band is not flagged.
+    # limit -> L_LF = 63.00 (Formula (13) with 60 and 66) and the band is not flagged.
     measurement = lf_measurement(receiving_corners=(67.0, 66.0), background_corners=(61.0, 30.0))
     result = airborne_insulation(measurement, Rooms(60.0, 20.0, 10.0))
-    assert result.receiving_level_db.at(63) == pytest.approx(64.75, abs=0.005)
+    assert result.receiving_level_db.at(63) == pytest.approx(LF_60_66_DB, abs=0.005)
     assert not result.limited[BANDS.index(63.0)]
     assert result.background_margin_db.at(63) == pytest.approx(6.0)  # the smallest margin that entered
     # now corner 1 stays highest after correction (70 - 1.3 = 68.7 > 66) -> its limit flag carries over
@@ -190,14 +220,14 @@ def test_low_frequency_procedure_in_a_small_source_room():
                                    source_corner_levels_db=[flat(96.0), flat(93.0)])
     measurement = AirborneMeasurement([position], [flat(10.0)] * 5, decays(0.5))
     result = airborne_insulation(measurement, Rooms(20.0, 60.0, 10.0))
-    # L1,LF = 10 lg((2·10^9.6 + 10^9.0)/3) = 94.75 dB at 50-80 Hz (same arithmetic as 60/66 -> 64.75)
-    assert result.source_level_db.at(80) == pytest.approx(94.75, abs=0.005)
+    # L1,LF = 10 lg((10^9.6 + 2·10^9.0)/3) = 93.00 dB at 50-80 Hz (Formula (13), same arithmetic as 60/66)
+    assert result.source_level_db.at(80) == pytest.approx(LF_60_66_DB + 30.0, abs=0.005)
     assert result.source_level_db.at(100) == pytest.approx(90.0)
 
 
 def test_small_room_without_corners_gives_a_finding():
     result = airborne_insulation(simple_measurement(), Rooms(60.0, 20.0, 10.0))
-    assert [f.code for f in result.findings] == ["low_frequency_corners_missing"]
+    assert [f.code for f in result.findings] == ["low_frequency_corners_missing", "low_frequency_octave_t_missing"]
 
 
 # --- limited bands (facts sheet 1.8: airborne values become lower bounds) ------------------------

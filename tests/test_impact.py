@@ -84,24 +84,53 @@ def test_limited_bands_are_upper_bounds():
     assert not any(corrected.limited)
 
 
+LF_60_66_DB = 10 * math.log10((10 ** 6.6 + 2 * 10 ** 6.0) / 3)  # ISO 16283-2 Formula (16) by hand: 62.9966 dB
+
+
 def test_low_frequency_procedure_in_a_small_receiving_room():
-    # 20 m3 < 25 m3: per tapping position, highest corner (66) combined with the default (60)
-    # -> 10 lg((2·10^6.6 + 10^6)/3) = 64.75 dB at 50-80 Hz (facts sheet 1.3 [C])
+    # 20 m3 < 25 m3: highest corner per tapping position (66), energy-averaged over positions
+    # (Formula (15): all 66 -> 66), combined with the default (60) by ISO 16283-2 Formula (16):
+    # 10 lg((10^6.6 + 2·10^6)/3) = 63.00 dB at 50-80 Hz (as transcribed; verify against a licensed copy)
     positions = [TappingPosition([flat(60.0)] * 2, [flat(66.0), flat(63.0), flat(61.0), flat(58.0)])] * 4
     small = ImpactMeasurement(positions, [flat(20.0)] * 2, [flat(0.5, unit="s")],
-                              background_corner_levels_db=[flat(20.0)] * 4)
+                              background_corner_levels_db=[flat(20.0)] * 4, octave_63_reverberation_times_s=(0.5,))
     result = impact_insulation(small, receiving_volume_m3=20.0)
-    assert result.impact_level_db.at(50) == pytest.approx(64.75, abs=0.005)
+    assert result.impact_level_db.at(50) == pytest.approx(LF_60_66_DB, abs=0.005)
     assert result.impact_level_db.at(100) == pytest.approx(60.0)
     assert result.findings == ()
+
+
+def test_small_room_uses_the_63_hz_octave_t_at_50_to_80_hz():
+    # ISO 16283-2 clause 10.4 (as transcribed): in a room under 25 m3 one 63 Hz octave-band T serves
+    # 50, 63 and 80 Hz. Third-octave T 0.5 s everywhere, octave T 1.0 s (mean of 0.8 and 1.2):
+    # L'nT = Li - 10 lg(T/0.5) = 60 - 3.0103 at 50-80 Hz, 60 at 100 Hz.
+    positions = [TappingPosition([flat(60.0)] * 2)]
+    small = ImpactMeasurement(positions, [flat(20.0)] * 2, [flat(0.5, unit="s")] * 2,
+                              octave_63_reverberation_times_s=(0.8, 1.2))
+    result = impact_insulation(small, receiving_volume_m3=24.4)
+    for hz in (50.0, 63.0, 80.0):
+        assert result.reverberation_time_s.at(hz) == pytest.approx(1.0)
+        assert result.standardized_impact_level_db.at(hz) == pytest.approx(60.0 - 10 * math.log10(2.0))
+    assert result.reverberation_time_s.at(100) == pytest.approx(0.5)
+    assert result.low_frequency_octave_t_s == pytest.approx(1.0)
+    assert result.spread.reverberation_std_s.at(63) == pytest.approx(math.sqrt(0.08))  # std of 0.8, 1.2 (n - 1)
+    assert any("63 Hz octave-band T" in rule for rule in result.rules_applied)
+    # 24.5 m3 rounds to 25: third-octave T stays
+    large = impact_insulation(small, receiving_volume_m3=24.5)
+    assert large.reverberation_time_s.at(63) == pytest.approx(0.5) and large.low_frequency_octave_t_s is None
+    # small room without an octave T: a finding, third-octave T kept
+    without = impact_insulation(ImpactMeasurement(positions, [flat(20.0)] * 2, [flat(0.5, unit="s")] * 2),
+                                receiving_volume_m3=20.0)
+    assert "low_frequency_octave_t_missing" in [f.code for f in without.findings]
+    assert without.reverberation_time_s.at(63) == pytest.approx(0.5)
 
 
 def test_corner_background_missing_is_a_finding_not_an_error():
     positions = [TappingPosition([flat(60.0)], [flat(66.0)])]
     result = impact_insulation(ImpactMeasurement(positions, [flat(20.0)], [flat(0.5, unit="s")]),
                                receiving_volume_m3=20.0)
-    assert [f.code for f in result.findings] == ["corner_background_missing"]
-    assert result.impact_level_db.at(63) == pytest.approx(64.75, abs=0.005)
+    assert [f.code for f in result.findings] == ["corner_background_missing", "low_frequency_octave_t_missing"]
+    assert result.impact_level_db.at(63) == pytest.approx(LF_60_66_DB, abs=0.005)
 
 
 def test_octave_impact_levels_are_energy_sums():

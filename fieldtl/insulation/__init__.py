@@ -12,6 +12,8 @@ from fieldtl.insulation.airborne import (
 from fieldtl.insulation.common import (
     BandSpread,
     background_corrected_db,
+    corner_level_db,
+    low_frequency_applies,
     low_frequency_level_db,
     octave_level_difference_db,
     octave_level_sum_db,
@@ -22,6 +24,6 @@ from fieldtl.insulation.impact import ImpactMeasurement, ImpactResult, TappingPo
 __all__ = [
     "AirborneMeasurement", "AirborneResult", "BandSpread", "ImpactMeasurement", "ImpactResult",
     "LoudspeakerPosition", "Rooms", "TappingPosition", "airborne_insulation", "background_corrected_db",
-    "combine_source_positions", "impact_insulation", "low_frequency_level_db", "octave_level_difference_db",
+    "combine_source_positions", "corner_level_db", "low_frequency_applies", "impact_insulation", "low_frequency_level_db", "octave_level_difference_db",
     "octave_level_sum_db", "octave_limited", "separating_area_m2",
 ]

@@ -27,6 +27,7 @@ from fieldtl.insulation.common import (
     analysis_bands_hz,
     average_reverberation_time,
     freeze_sequences,
+    low_frequency_reverberation,
     ignored_bands_rule,
     require_positive,
     room_levels,
@@ -80,10 +81,11 @@ class AirborneMeasurement:
     reverberation_times_s: tuple[BandSpectrum, ...]
     background_corner_levels_db: tuple[BandSpectrum, ...] = ()
     reverberation_time_kind: ReverberationKind = "decays"
+    octave_63_reverberation_times_s: tuple[float, ...] = ()   # 63 Hz octave-band T per decay (small rooms)
 
     def __post_init__(self) -> None:
         freeze_sequences(self, "positions", "background_levels_db", "reverberation_times_s",
-                  "background_corner_levels_db")
+                  "background_corner_levels_db", "octave_63_reverberation_times_s")
 
 
 @dataclass(frozen=True, slots=True)
@@ -122,6 +124,7 @@ class AirborneResult:
     separating_area_m2: float | None  # S actually used for R'
     rules_applied: tuple[str, ...]
     findings: tuple[Finding, ...]
+    low_frequency_octave_t_s: float | None = None   # 63 Hz octave T used at 50/63/80 Hz (room under 25 m3)
 
     @property
     def nominal_hz(self) -> tuple[float, ...]:
@@ -187,8 +190,9 @@ def airborne_insulation(measurement: AirborneMeasurement, rooms: Rooms, *,
     LF corner procedure at 50/63/80 Hz; then Dj = L1,j - L2,j combined by ``source_combination``;
     A = 0.16 V2 / T; Dn = D - 10 lg(A/A0); DnT = D + 10 lg(T/T0); R' = D + 10 lg(S/A).
     Evaluates the given bands inside 50-5000 Hz (100-3150 Hz must be present).
-    Does not rate (ISO 717-1), check position distances, averaging times or the 8 dB source
-    spectrum rule, and does not apply the 63 Hz-octave option for T in small rooms.
+    In a receiving room under 25 m3 (rounded) the 50/63/80 Hz T is the 63 Hz octave-band T of
+    ``octave_63_reverberation_times_s`` (ISO 16283-1 clause 10.4). Does not rate (ISO 717-1), check
+    position distances, averaging times or the 8 dB source spectrum rule.
     """
     if not measurement.positions or not measurement.positions[0].receiving_levels_db:
         raise InputError("airborne measurement: no loudspeaker positions with receiving-room levels")
@@ -210,6 +214,9 @@ def airborne_insulation(measurement: AirborneMeasurement, rooms: Rooms, *,
     d = combine_source_positions(position_d, rule=source_combination)
     t_s, t_std_s, decay_count, t_rule = average_reverberation_time(
         measurement.reverberation_times_s, bands, kind=measurement.reverberation_time_kind)
+    low_t = low_frequency_reverberation(t_s, t_std_s, bands, measurement.octave_63_reverberation_times_s,
+                                        volume_m3=receiving_m3)
+    t_s, t_std_s = low_t.mean_s, low_t.std_s
     a_m2 = absorption_area_m2(receiving_m3, t_s)  # A = 0.16 V / T, receiving room (facts sheet 1.1)
     dn = d - 10.0 * np.log10(a_m2 / a0_m2)  # Dn = D - 10 lg(A/A0), ISO 16283-1
     dnt = d + 10.0 * np.log10(t_s / t0_s)  # DnT = D + 10 lg(T/T0), ISO 16283-1
@@ -218,7 +225,7 @@ def airborne_insulation(measurement: AirborneMeasurement, rooms: Rooms, *,
     rules = (*ignored_bands_rule(first),
              "energy average of microphone positions per loudspeaker position (ISO 16283-1)",
              _COMBINATION_RULES[source_combination], BACKGROUND_RULE, *source.rules, *receiving.rules,
-             t_rule, f"A = 0.16 V/T with the receiving-room volume {receiving_m3:g} m3; "
+             t_rule, *low_t.rules, f"A = 0.16 V/T with the receiving-room volume {receiving_m3:g} m3; "
              f"A0 = {a0_m2:g} m2, T0 = {t0_s:g} s", s_rule)
     spread = BandSpread(to_spectrum(bands, source.reading_std_db, "L1 std"),
                         to_spectrum(bands, receiving.reading_std_db, "L2 std"),
@@ -240,6 +247,7 @@ def airborne_insulation(measurement: AirborneMeasurement, rooms: Rooms, *,
         spread=spread,
         separating_area_m2=s_m2,
         rules_applied=tuple(rules),
-        findings=(*source.findings, *receiving.findings),
+        findings=(*source.findings, *receiving.findings, *low_t.findings),
+        low_frequency_octave_t_s=low_t.octave_63_s,
     )
 

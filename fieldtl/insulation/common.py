@@ -8,6 +8,7 @@ sheet, which says for each number whether it was verified, computed or recalled 
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Literal, NamedTuple
@@ -29,7 +30,7 @@ from fieldtl.units import db_to_energy, energetic_mean_db, energy_to_db
 FIELD_BANDS_HZ = THIRD_OCTAVES_50_5000_HZ  # ISO 16283-1/-2: 50-5000 Hz with the optional bands (facts sheet 1.2)
 REQUIRED_BANDS_HZ = THIRD_OCTAVES_100_3150_HZ  # required range, ISO 16283-1/-2 (facts sheet 1.2, 2)
 LOW_FREQUENCY_BANDS_HZ = (50.0, 63.0, 80.0)  # bands of the low-frequency procedure (facts sheet 1.3)
-LOW_FREQUENCY_VOLUME_LIMIT_M3 = 25.0  # LF procedure in a room "under 25 m3", strictly less (facts sheet 1.3)
+LOW_FREQUENCY_VOLUME_LIMIT_M3 = 25  # LF procedure: volume rounded to whole m3 below 25 (ISO 16283-1/-2, as transcribed)
 REFERENCE_TIME_S = 0.5  # T0 of ISO 16283-1/-2 (facts sheet 1.1, from memory, high confidence)
 REFERENCE_AREA_M2 = 10.0  # A0 of ISO 16283-1/-2 (facts sheet 1.1, from memory, high confidence)
 SABINE_FACTOR_S_PER_M = 0.16  # A = 0.16 V / T as used by the ISO field standards (facts sheet 0)
@@ -74,21 +75,39 @@ def background_corrected_db(signal_db: ArrayLike, background_db: ArrayLike) -> B
     return BackgroundCorrection(level, margin, limited)
 
 
-def low_frequency_level_db(default_level_db: ArrayLike, corner_levels_db: ArrayLike) -> np.ndarray:
-    """L_LF = 10 lg[(2·10^(0.1 L_corner) + 10^(0.1 L)) / 3] with L_corner the highest corner level.
+def low_frequency_applies(volume_m3: float) -> bool:
+    """True when the room needs the low-frequency procedure at 50, 63 and 80 Hz.
 
-    ISO 16283-1/-2 low-frequency procedure (facts sheet 1.3, from memory, medium-high confidence).
-    ``corner_levels_db`` has the corners on its first axis and the shape of ``default_level_db``
-    after it (one corner may also be given with just that shape); corners are background-corrected
-    beforehand where that applies. The highest corner is taken band by band. Does not check room
-    volumes or which bands apply.
+    ISO 16283-1/-2 (as transcribed): the room volume rounded to the nearest cubic metre is smaller
+    than 25 m3, so 24.4 m3 applies and 24.5 m3 (rounds to 25) does not. Halves round up here.
+    """
+    return math.floor(float(volume_m3) + 0.5) < LOW_FREQUENCY_VOLUME_LIMIT_M3
+
+
+def corner_level_db(corner_levels_by_position: Sequence[ArrayLike]) -> np.ndarray:
+    """L_Corner: per position the highest corner level per band, energy-averaged over positions.
+
+    ``corner_levels_by_position[j]`` has the corners of loudspeaker (or tapping-machine) position j
+    on its first axis and the bands on its second. The highest corner is taken band by band (bands
+    may come from different corners); with several positions their maxima are energy-averaged
+    (ISO 16283-1 Formula (12), ISO 16283-2 Formula (15), as transcribed).
+    """
+    maxima = [np.max(np.atleast_2d(np.asarray(c, dtype=float)), axis=0) for c in corner_levels_by_position]
+    if not maxima:
+        raise InputError("low-frequency procedure: no corner levels given")
+    return energetic_mean_db(np.vstack(maxima))
+
+
+def low_frequency_level_db(default_level_db: ArrayLike, corner_level: ArrayLike) -> np.ndarray:
+    """L_LF = 10 lg[(10^(0.1 L_Corner) + 2·10^(0.1 L)) / 3].
+
+    The corner level weighs one third and the default-procedure energy average L two thirds
+    (ISO 16283-1 Formula (13), ISO 16283-2 Formula (16), ISO 16283-3 Formula (5), as transcribed).
+    ``corner_level`` is L_Corner from :func:`corner_level_db`. Does not check volumes or bands.
     """
     default = np.asarray(default_level_db, dtype=float)
-    corners = np.asarray(corner_levels_db, dtype=float)
-    if corners.ndim == default.ndim:
-        corners = corners[np.newaxis]
-    highest_corner_db = np.max(corners, axis=0)  # L_Corner: highest corner level per band
-    return energy_to_db((2.0 * db_to_energy(highest_corner_db) + db_to_energy(default)) / 3.0)
+    corner = np.asarray(corner_level, dtype=float)
+    return energy_to_db((db_to_energy(corner) + 2.0 * db_to_energy(default)) / 3.0)
 
 
 def weighted_energy_mean_db(levels_db: np.ndarray, weights: Sequence[float]) -> np.ndarray:
@@ -182,8 +201,8 @@ def average_reverberation_time(decays: Sequence[BandSpectrum], nominal_hz: Seque
     ``kind="decays"``: one spectrum per decay, arithmetic mean per band (ISO 16283-1 / ISO 3382-2,
     from memory). ``kind="averaged"``: exactly one spectrum that the caller already
     averaged (for example T from an ensemble-averaged decay); it is used unchanged and its spread
-    is unknown. Returns (mean_s, std_s, decay_count, rule text). Does not apply the 63 Hz-octave
-    option of the low-frequency procedure: pass T for 50/63/80 Hz already chosen that way.
+    is unknown. Returns (mean_s, std_s, decay_count, rule text). The low-frequency rule for small
+    rooms is applied afterwards by :func:`low_frequency_reverberation`.
     """
     values_s = stack_db(decays, nominal_hz, what="reverberation times", unit="s")
     with np.errstate(invalid="ignore"):
@@ -206,6 +225,48 @@ def average_reverberation_time(decays: Sequence[BandSpectrum], nominal_hz: Seque
     partial = "" if valid.all() else "; a band where a decay gave no valid T uses the remaining decays"
     return (mean_s, std_s, count,
             f"T per band: arithmetic mean of {count} decay(s) (ISO 16283-1/-2, from memory){partial}")
+
+
+class LowFrequencyReverberation(NamedTuple):
+    """T and its spread per band after the low-frequency rule, and what was done."""
+
+    mean_s: np.ndarray
+    std_s: np.ndarray
+    octave_63_s: float | None   # the 63 Hz octave-band T used for 50, 63 and 80 Hz, or None
+    rules: tuple[str, ...]
+    findings: tuple[Finding, ...]
+
+
+def low_frequency_reverberation(mean_s: np.ndarray, std_s: np.ndarray, nominal_hz: Sequence[float],
+                                octave_63_s: Sequence[float], *, volume_m3: float) -> LowFrequencyReverberation:
+    """In a room under 25 m3 (rounded) the 50, 63 and 80 Hz T is one 63 Hz octave-band T.
+
+    ISO 16283-1/-2 clause 10.4 (as transcribed): the one-third-octave T is not used there; one T
+    measured in the 63 Hz octave band (here the arithmetic mean of the decays' octave T) serves all
+    three bands. ``octave_63_s`` holds one octave T per decay (NaN: that decay gave none). Without
+    any, the one-third-octave T stays and a finding says the standard's T is missing.
+    """
+    lf_mask = np.isin(np.asarray(nominal_hz, dtype=float), LOW_FREQUENCY_BANDS_HZ)
+    if not lf_mask.any() or not low_frequency_applies(volume_m3):
+        return LowFrequencyReverberation(mean_s, std_s, None, (), ())
+    values = np.asarray(octave_63_s, dtype=float)
+    values = values[np.isfinite(values) & (values > 0)]
+    if values.size == 0:
+        return LowFrequencyReverberation(mean_s, std_s, None, (
+            f"receiving room {volume_m3:g} m3 (under 25 m3 when rounded): no 63 Hz octave-band T available; "
+            "one-third-octave T used at 50-80 Hz instead of the standard's octave T",), (Finding(
+                "low_frequency_octave_t_missing", "warning",
+                "The receiving room is under 25 m3, where 50, 63 and 80 Hz need the reverberation time of the "
+                "63 Hz octave band, but no decay gave one; one-third-octave values were used.",
+                "Record decays with enough low-frequency energy (or give the 63 Hz octave T).",
+                clause="ISO 16283-1/-2 clause 10.4"),))
+    mean, std = mean_s.copy(), std_s.copy()
+    octave_mean = float(np.mean(values))
+    mean[lf_mask] = octave_mean
+    std[lf_mask] = float(np.std(values, ddof=1)) if values.size >= 2 else np.nan
+    rule = (f"receiving room {volume_m3:g} m3 (under 25 m3 when rounded): T at 50, 63 and 80 Hz is the 63 Hz "
+            f"octave-band T = {octave_mean:.2f} s (mean of {values.size} decay(s)), ISO 16283-1/-2 clause 10.4")
+    return LowFrequencyReverberation(mean, std, octave_mean, (rule,), ())
 
 
 def octave_level_difference_db(spectrum: BandSpectrum) -> BandSpectrum:
@@ -265,10 +326,10 @@ def room_levels(readings: Sequence[Sequence[BandSpectrum]], corners: Sequence[Se
     ``readings[j]`` are the default-procedure microphone levels for source position j (energy
     averaged, ISO 16283-1/-2); ``corners[j]`` the LF corner levels for that position. With a
     ``background`` (receiving room), the position average and each corner are corrected
-    individually (corner i by ``background_corners[i]``; facts sheet 1.3); ``background=None``
-    means no correction (source room), an empty sequence that none was measured (a finding). The
-    LF combination is
-    applied to 50/63/80 Hz only when ``volume_m3`` < 25 m3 and corners were measured.
+    individually (corner i by ``background_corners[i]``); ``background=None`` means no correction
+    (source room), an empty sequence that none was measured (a finding). The LF procedure is
+    applied to 50/63/80 Hz only when :func:`low_frequency_applies` and corners were measured; its
+    room-level step L_LF - L is added to every position's level in those bands.
     Does not check microphone distances, averaging times or corner positions.
     """
     raw = [stack_db(r, nominal_hz, what=f"{room} levels") for r in readings]
@@ -291,19 +352,20 @@ def room_levels(readings: Sequence[Sequence[BandSpectrum]], corners: Sequence[Se
         corrected = background_corrected_db(levels, background_db)
         levels, limited = corrected.level_db, corrected.limited
         margin = np.min(corrected.margin_db, axis=0)
-    lf_mask = np.isin(nominal_hz, LOW_FREQUENCY_BANDS_HZ) & (volume_m3 < LOW_FREQUENCY_VOLUME_LIMIT_M3)
+    lf_mask = np.isin(nominal_hz, LOW_FREQUENCY_BANDS_HZ) & low_frequency_applies(volume_m3)
     has_corners = [len(c) > 0 for c in corners]
     if any(has_corners) and not all(has_corners):
         raise InputError(f"{room}: corner levels given for some source positions but not for others")
     if lf_mask.any() and not any(has_corners):
-        rules.append(f"{room} ({volume_m3:g} m3 < 25 m3): low-frequency procedure needed for 50-80 Hz "
-                     "but no corner levels given; default procedure used")
+        rules.append(f"{room} ({volume_m3:g} m3, under 25 m3 when rounded): low-frequency procedure needed "
+                     "for 50-80 Hz but no corner levels given; default procedure used")
         findings.append(Finding(
             "low_frequency_corners_missing", "warning",
             f"The {room} is {volume_m3:g} m3 (under 25 m3) but no corner levels were measured; "
             "50, 63 and 80 Hz use the default procedure only.",
-            "Measure the low-frequency corner positions in that room.",
-            clause="ISO 16283-1/-2 low-frequency procedure (facts sheet 1.3)"))
+            "Measure four corners (two at floor, two at ceiling level, 15 s each) in that room for every "
+            "source position, and the background noise in each corner.",
+            clause="ISO 16283-1/-2 low-frequency procedure"))
     elif any(has_corners) and not lf_mask.any():
         rules.append(f"{room}: corner levels not used (room volume {volume_m3:g} m3 is not under 25 m3 "
                      "or no 50-80 Hz bands are evaluated)")
@@ -317,22 +379,29 @@ def room_levels(readings: Sequence[Sequence[BandSpectrum]], corners: Sequence[Se
                 f"No background levels were measured at the {room} corners; the room's average "
                 "background was used for them.",
                 "Measure the background noise at each low-frequency corner position.",
-                clause="ISO 16283-1/-2 low-frequency procedure (facts sheet 1.3)"))
+                clause="ISO 16283-1/-2 low-frequency procedure"))
+        corrected_corners = []
         for j, position_corners in enumerate(corners):
             corner_db = stack_db(position_corners, lf_hz, what=f"{room} corner levels")
-            corner_limited = np.zeros(corner_db.shape, dtype=bool)
-            if background_db is not None:
+            if background_db is not None:   # each corner corrected by its own background (ISO 16283-1/-2)
                 corner_background_db = _corner_background(background_corners, background_db[lf_mask],
                                                           len(position_corners), lf_hz, room)
-                corrected = background_corrected_db(corner_db, corner_background_db)  # each corner on its own
-                corner_db, corner_limited = corrected.level_db, corrected.limited
+                corrected = background_corrected_db(corner_db, corner_background_db)
+                corner_db = corrected.level_db
+                highest = np.argmax(corner_db, axis=0)
+                limited[j, lf_mask] |= corrected.limited[highest, np.arange(len(lf_hz))]  # chosen corner a limit
                 margin[lf_mask] = np.minimum(margin[lf_mask], np.min(corrected.margin_db, axis=0))
-            highest = np.argmax(corner_db, axis=0)
-            limited[j, lf_mask] |= corner_limited[highest, np.arange(len(lf_hz))]  # chosen corner a limit
-            levels[j, lf_mask] = low_frequency_level_db(levels[j, lf_mask], corner_db)
-        rules.append(f"{room} ({volume_m3:g} m3 < 25 m3): low-frequency procedure at "
-                     f"{', '.join(f'{f:g}' for f in lf_hz)} Hz, highest corner level combined 2:1 with "
-                     "the default level, per source position (ISO 16283-1/-2, from memory)")
+            corrected_corners.append(corner_db)
+        # L_LF of the room from its default average and L_Corner; the same dB step is added to every
+        # position's level, so the room average equals L_LF and D keeps its position combination.
+        default_db = weighted_energy_mean_db(levels[:, lf_mask], [r.shape[0] for r in raw])
+        step_db = low_frequency_level_db(default_db, corner_level_db(corrected_corners)) - default_db
+        levels[:, lf_mask] += step_db
+        rules.append(f"{room} ({volume_m3:g} m3, under 25 m3 when rounded): low-frequency procedure at "
+                     f"{', '.join(f'{f:g}' for f in lf_hz)} Hz: L_Corner = energy average over source "
+                     "positions of the highest corner level per band, combined with the default level L as "
+                     "L_LF = 10 lg[(10^(0.1 L_Corner) + 2·10^(0.1 L))/3] (ISO 16283-1 Formulae (12), (13); "
+                     "ISO 16283-2 Formulae (15), (16))")
     pooled = np.vstack(raw)
     return RoomLevels(levels, tuple(r.shape[0] for r in raw), margin, np.any(limited, axis=0),
                       sample_std(pooled), pooled.shape[0],

@@ -26,6 +26,7 @@ from fieldtl.insulation.common import (
     analysis_bands_hz,
     average_reverberation_time,
     freeze_sequences,
+    low_frequency_reverberation,
     ignored_bands_rule,
     require_positive,
     room_levels,
@@ -58,10 +59,11 @@ class ImpactMeasurement:
     reverberation_times_s: tuple[BandSpectrum, ...]
     background_corner_levels_db: tuple[BandSpectrum, ...] = ()
     reverberation_time_kind: ReverberationKind = "decays"
+    octave_63_reverberation_times_s: tuple[float, ...] = ()   # 63 Hz octave-band T per decay (small rooms)
 
     def __post_init__(self) -> None:
         freeze_sequences(self, "positions", "background_levels_db", "reverberation_times_s",
-                         "background_corner_levels_db")
+                         "background_corner_levels_db", "octave_63_reverberation_times_s")
 
 
 @dataclass(frozen=True, slots=True)
@@ -84,6 +86,7 @@ class ImpactResult:
     spread: BandSpread
     rules_applied: tuple[str, ...]
     findings: tuple[Finding, ...]
+    low_frequency_octave_t_s: float | None = None   # 63 Hz octave T used at 50/63/80 Hz (room under 25 m3)
 
     @property
     def nominal_hz(self) -> tuple[float, ...]:
@@ -104,7 +107,9 @@ def impact_insulation(measurement: ImpactMeasurement, *, receiving_volume_m3: fl
     procedure at 50/63/80 Hz; Li is then the energy average over tapping positions weighted by
     their microphone counts (equal to the average over all tapping x microphone combinations when
     nothing was corrected); L'n = Li + 10 lg(A/A0), L'nT = Li - 10 lg(T/T0).
-    Does not rate (ISO 717-2), handle the rubber-ball source (L_Fmax) or check tapping positions.
+    In a receiving room under 25 m3 (rounded) the 50/63/80 Hz T is the 63 Hz octave-band T
+    (ISO 16283-2 clause 10.4). Does not rate (ISO 717-2), handle the rubber-ball source (L_Fmax) or
+    check tapping positions.
     """
     if not measurement.positions or not measurement.positions[0].receiving_levels_db:
         raise InputError("impact measurement: no tapping positions with receiving-room levels")
@@ -121,12 +126,15 @@ def impact_insulation(measurement: ImpactMeasurement, *, receiving_volume_m3: fl
     li = weighted_energy_mean_db(room.levels_db, room.weights)  # energy average, ISO 16283-2
     t_s, t_std_s, decay_count, t_rule = average_reverberation_time(
         measurement.reverberation_times_s, bands, kind=measurement.reverberation_time_kind)
+    low_t = low_frequency_reverberation(t_s, t_std_s, bands, measurement.octave_63_reverberation_times_s,
+                                        volume_m3=volume_m3)
+    t_s, t_std_s = low_t.mean_s, low_t.std_s
     a_m2 = absorption_area_m2(volume_m3, t_s)  # A = 0.16 V / T (facts sheet 2)
     normalized = li + 10.0 * np.log10(a_m2 / a0_m2)  # L'n = Li + 10 lg(A/A0), ISO 16283-2
     standardized = li - 10.0 * np.log10(t_s / t0_s)  # L'nT = Li - 10 lg(T/T0), ISO 16283-2
     rules = (*ignored_bands_rule(first),
              "Li: energy average over tapping positions x microphone positions (ISO 16283-2)",
-             BACKGROUND_RULE + " (impact: limited bands are upper bounds)", *room.rules, t_rule,
+             BACKGROUND_RULE + " (impact: limited bands are upper bounds)", *room.rules, t_rule, *low_t.rules,
              f"A = 0.16 V/T with the receiving-room volume {volume_m3:g} m3; A0 = {a0_m2:g} m2, T0 = {t0_s:g} s")
     spread = BandSpread(None, to_spectrum(bands, room.reading_std_db, "Li std"),
                         to_spectrum(bands, t_std_s, "T std", "s"), 0, room.reading_count, decay_count)
@@ -142,5 +150,6 @@ def impact_insulation(measurement: ImpactMeasurement, *, receiving_volume_m3: fl
         background_margin_db=to_spectrum(bands, room.margin_db, "Li - B2"),
         spread=spread,
         rules_applied=rules,
-        findings=room.findings,
+        findings=(*room.findings, *low_t.findings),
+        low_frequency_octave_t_s=low_t.octave_63_s,
     )
