@@ -47,6 +47,7 @@ class TakeSummary:
     level_history_std_db: float | None = None        # std of the 1 s overall levels
     background_event_db: float | None = None         # loudest 1 s level minus the median 1 s level
     reverberation_time_s: BandSpectrum | None = None
+    octave_63_reverberation_time_s: float | None = None   # 63 Hz octave T20 of a decay (small rooms, 50-80 Hz)
 
 
 def check_positions(takes: Sequence[TakeSummary], *, test_type: str) -> tuple[Finding, ...]:
