@@ -17,6 +17,7 @@ import soundfile
 from scipy import fft
 
 from fieldtl.errors import InputError
+from fieldtl.validate import SAMPLE_RATE_HZ
 
 
 SINE_CREST_DB = 10.0 * math.log10(2.0)   # a sine's peak is √2 times its RMS: 3.01 dB (computed)
@@ -24,6 +25,11 @@ DECONVOLUTION_REGULARISATION_DB = 60.0   # ε of the spectral division, dB below
 # Kept before the linear response's peak: room for the band filters' spread (common practice);
 # with a known sweep, also at most half the 2nd harmonic's advance so no harmonic is kept.
 IMPULSE_LEAD_S = 0.02
+# The longest signal made in memory: 2**25 samples (about 11.6 min at 48 kHz, 87 s at 384 kHz) keep
+# the noise generator's spectrum and samples under about 1.5 GB. Test noise is looped by the player,
+# so a longer file adds nothing.
+MAX_GENERATED_SAMPLES = 2 ** 25
+MAX_SEED = 2 ** 63 - 1
 
 
 def checked_audio(samples: np.ndarray, *, sample_rate_hz: float, source_name: str,
@@ -88,6 +94,8 @@ def _shaped_noise(name: str, duration_s: float, amplitude_exponent: float, *, sa
     in_band = (frequency_hz >= low_hz) & (frequency_hz <= top_hz)
     if np.count_nonzero(in_band) < 2:
         raise InputError(f"{name}: {duration_s:g} s is too short to resolve the band {low_hz:g}-{top_hz:g} Hz")
+    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed <= MAX_SEED):
+        raise InputError(f"{name}: seed must be a whole number from 0 to {MAX_SEED}, got {str(seed)[:80]}")
     rng = np.random.default_rng(seed)
     spectrum = rng.standard_normal(frequency_hz.size) + 1j * rng.standard_normal(frequency_hz.size)
     gain = np.zeros(frequency_hz.size)
@@ -141,8 +149,8 @@ def exponential_sweep(spec: SweepSpec, *, silence_s: float = 0.0) -> np.ndarray:
     """The sweep x(t) = sin(2π f1 L (exp(t/L) - 1)), L = Ts/ln(f2/f1) (Farina 2000), faded, then
     ``silence_s`` of zeros so the room's decay is recorded after the sweep ends.
     """
-    if not (math.isfinite(silence_s) and silence_s >= 0.0):
-        raise InputError(f"sweep: silence after the sweep must be 0 s or more, got {silence_s!r}")
+    if not (math.isfinite(silence_s) and 0.0 <= silence_s <= 60.0):
+        raise InputError(f"sweep: silence after the sweep must be 0 to 60 s, got {silence_s!r}")
     n_samples = round(spec.duration_s * spec.sample_rate_hz)
     time_s = np.arange(n_samples) / spec.sample_rate_hz
     phase_rad = 2.0 * math.pi * spec.low_hz * spec.rate_constant_s * np.expm1(time_s / spec.rate_constant_s)
@@ -257,14 +265,23 @@ def write_signal_wav(target: str | Path | BinaryIO, samples: np.ndarray, *, samp
 
 
 def sample_count(name: str, duration_s: float, sample_rate_hz: float) -> int:
-    """Samples in ``duration_s`` at ``sample_rate_hz``; InputError (naming ``name``) unless at least 2."""
-    if not (isinstance(sample_rate_hz, (int, float)) and math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
-        raise InputError(f"{name}: sample rate must be a positive number of Hz, got {sample_rate_hz!r}")
+    """Samples in ``duration_s`` at ``sample_rate_hz``, checked before anything is allocated.
+
+    InputError (naming ``name``) unless the rate is 8-384 kHz and the count is 2 to
+    :data:`MAX_GENERATED_SAMPLES`.
+    """
+    low_hz, high_hz = SAMPLE_RATE_HZ
+    if not (isinstance(sample_rate_hz, (int, float)) and math.isfinite(sample_rate_hz)
+            and low_hz <= sample_rate_hz <= high_hz):
+        raise InputError(f"{name}: sample rate must be {low_hz:,} to {high_hz:,} Hz, got {sample_rate_hz!r}")
     if not (isinstance(duration_s, (int, float)) and math.isfinite(duration_s) and duration_s > 0):
         raise InputError(f"{name}: duration must be a positive number of seconds, got {duration_s!r}")
     n_samples = round(duration_s * sample_rate_hz)
     if n_samples < 2:
         raise InputError(f"{name}: {duration_s:g} s is shorter than two samples at {sample_rate_hz:g} Hz")
+    if n_samples > MAX_GENERATED_SAMPLES:
+        raise InputError(f"{name}: {duration_s:g} s at {sample_rate_hz:g} Hz is too long; at most "
+                         f"{MAX_GENERATED_SAMPLES / sample_rate_hz:.0f} s at this rate")
     return n_samples
 
 
