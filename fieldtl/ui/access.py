@@ -140,7 +140,11 @@ class GuessLimiter:
         with self._lock:
             self._forget_old(now)
             for key in keys:
-                record = self._records.pop(key, None) or _Record(0, now)   # re-inserted last: newest
+                record = self._records.pop(key, None)      # re-inserted below, so the dict runs oldest first
+                if record is None:
+                    record = _Record(0, now)
+                    while len(self._records) >= MAX_TRACKED:
+                        del self._records[next(iter(self._records))]
                 self._records[key] = _Record(record.failures + 1, now)
         return self.wait_s(keys)
 
@@ -153,8 +157,6 @@ class GuessLimiter:
         stale = [key for key, record in self._records.items() if now - record.last_failure_s >= FORGET_S]
         for key in stale:
             del self._records[key]
-        while len(self._records) >= MAX_TRACKED:
-            del self._records[next(iter(self._records))]
 
 
 LIMITER = GuessLimiter()     # one per server process, shared by every session
