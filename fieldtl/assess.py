@@ -26,8 +26,9 @@ from fieldtl.qa import (TakeSummary, check_against_lab_rating, check_astm_scope,
                         check_source_spectrum, check_spatial_spread, check_stationarity)
 from fieldtl.rating import Rating, rate_e413, rate_e989, rate_iso717_1, rate_iso717_2
 from fieldtl.survey import Geometry, Survey
+from fieldtl.iso12999 import SITUATIONS, band_table_name, band_uncertainty_db, single_number_uncertainty
 from fieldtl.uncertainty import (CombinedUncertainty, Verdict, band_standard_error_db, decide,
-                                 parse_requirement, propagate_to_single_number, table_uncertainty)
+                                 measurement_uncertainty, parse_requirement)
 
 
 SourceCombination = Literal["energy", "arithmetic", "simultaneous"]
@@ -62,8 +63,12 @@ class Assessment:
     takes: tuple[TakeSummary, ...]
     rules_applied: tuple[str, ...]
     cautions: tuple[str, ...] = CAUTIONS
-    table_uncertainty_db: dict[str, float] = field(default_factory=dict, hash=False)
-    uncertainty_note: str = ""
+    # ISO 12999-1 single-number u per quantity ("DnT,w", "DnT,w + Ctr" ...); None where no row exists
+    table_uncertainty_db: dict[str, float | None] = field(default_factory=dict, hash=False)
+    uncertainty_note: str = ""                     # names the ISO 12999-1 tables and the situation used
+    uncertainty_situation: str = "B"
+    band_uncertainty_db: BandSpectrum | None = None     # ISO 12999-1 Table 2 / Table 4 per band, that situation
+    band_spread_db: BandSpectrum | None = None          # this test's own standard error per band (DnT / L'nT)
     construction_check: Comparison | None = None   # declared build-up predicted and compared with R'
     geometry: Geometry | None = None               # as entered in the survey
     construction: str | None = None                # the survey's description of the element
@@ -114,19 +119,47 @@ def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
     check = _construction_check(survey, result)
     if check is not None:
         found += check.findings
-    table_u = {r.descriptor: table_uncertainty(r.descriptor, situation=survey.uncertainty_situation)
-               for r in ratings}
+    situation = survey.uncertainty_situation
+    table_u = _table_uncertainties(ratings, situation)
     verdict, combined, verdict_findings = _verdict(survey, result, rated, options)
     found += verdict_findings
-    note = next(iter(table_u.values())).source if table_u else ""
+    band_u = band_uncertainty_db(survey.test_type, result.nominal_hz, situation=situation)
     return Assessment(title=survey.title, test_type=survey.test_type, source_name=survey.source_name,
                       calibrated=calibrated, result=result, ratings=ratings,
                       rated_spectra=tuple(r.spectrum for r in rated), verdict=verdict,
                       uncertainty=combined, findings=tuple(found), takes=tuple(takes),
                       rules_applied=result.rules_applied,
-                      table_uncertainty_db={d: u.standard_uncertainty_db for d, u in table_u.items()},
-                      uncertainty_note=note, construction_check=check, geometry=survey.geometry,
+                      table_uncertainty_db=table_u,
+                      uncertainty_note=uncertainty_note(survey.test_type, situation, band_u is not None),
+                      uncertainty_situation=situation, band_uncertainty_db=band_u,
+                      band_spread_db=_band_spread(result), construction_check=check, geometry=survey.geometry,
                       construction=survey.construction, element_lab_rw_db=survey.element_lab_rw_db)
+
+
+def uncertainty_note(test_type: str, situation: str, has_band_values: bool) -> str:
+    """One sentence naming the ISO 12999-1 tables and the situation behind every u shown."""
+    single = "Table 3" if test_type == "airborne" else "Table 5"
+    band = (f"per band from {band_table_name(test_type).split(' ', 1)[1]}" if has_band_values
+            else "no per-band values (Table 4 gives none for situation A)")
+    return (f"ISO 12999-1:2020, situation {situation} ({SITUATIONS[situation]}): single numbers from {single}, "
+            f"{band}")
+
+
+def _table_uncertainties(ratings: Sequence[Rating], situation: str) -> dict[str, float | None]:
+    """The ISO 12999-1 value of every ISO rating and every rating + adaptation term computed."""
+    values: dict[str, float | None] = {}
+    for rating in ratings:
+        if not rating.standard.startswith("ISO"):
+            continue
+        for term in (None, *rating.adaptation_terms_db):
+            row = single_number_uncertainty(rating.descriptor, term, situation=situation)
+            values[row.quantity] = row.standard_uncertainty_db
+    return values
+
+
+def _band_spread(result: AirborneResult | ImpactResult) -> BandSpectrum:
+    """This test's own standard error per band of DnT (airborne) or L'nT (impact), T spread included."""
+    return band_standard_error_db(result, include_reverberation=True)
 
 
 def _construction_check(survey: Survey, result: AirborneResult | ImpactResult) -> Comparison | None:
@@ -141,6 +174,13 @@ def _construction_check(survey: Survey, result: AirborneResult | ImpactResult) -
 def _levels(takes: Sequence[TakeSummary], role: str, speaker: int | None = None) -> tuple[BandSpectrum, ...]:
     return tuple(t.level_db for t in takes
                  if t.role == role and t.level_db is not None and (speaker is None or t.speaker == speaker))
+
+
+def _octave_63(takes: Sequence[TakeSummary]) -> tuple[float, ...]:
+    """63 Hz octave T of the decays that gave one third-octave T too (small rooms, 50-80 Hz)."""
+    return tuple(t.octave_63_reverberation_time_s for t in takes
+                 if t.role == "decay" and t.reverberation_time_s is not None
+                 and t.octave_63_reverberation_time_s is not None)
 
 
 def _speakers(takes: Sequence[TakeSummary], role: str) -> list[int]:
@@ -161,7 +201,7 @@ def _airborne(survey: Survey, takes: Sequence[TakeSummary], backgrounds: tuple[B
                       for s in speakers)
     geometry = survey.geometry
     measurement = AirborneMeasurement(positions=positions, background_levels_db=backgrounds,
-                                      reverberation_times_s=decays)
+                                      reverberation_times_s=decays, octave_63_reverberation_times_s=_octave_63(takes))
     rooms = Rooms(source_volume_m3=geometry.source_volume_m3 or geometry.receiving_volume_m3,
                   receiving_volume_m3=geometry.receiving_volume_m3, common_area_m2=geometry.separating_area_m2)
     return airborne_insulation(measurement, rooms, source_combination=options.source_combination,
@@ -174,7 +214,7 @@ def _impact(survey: Survey, takes: Sequence[TakeSummary], backgrounds: tuple[Ban
                                       receiving_corner_levels_db=_levels(takes, "receiving_corner", s))
                       for s in _speakers(takes, "impact"))
     measurement = ImpactMeasurement(positions=positions, background_levels_db=backgrounds,
-                                    reverberation_times_s=decays)
+                                    reverberation_times_s=decays, octave_63_reverberation_times_s=_octave_63(takes))
     return impact_insulation(measurement, receiving_volume_m3=survey.geometry.receiving_volume_m3)
 
 
@@ -188,11 +228,6 @@ class RatedSpectrum:
 
     rating: Rating
     spectrum: BandSpectrum
-
-
-_RATERS: dict[str, Callable[..., Rating]] = {
-    "ISO 717-1": rate_iso717_1, "ISO 717-2": rate_iso717_2, "ASTM E413": rate_e413, "ASTM E989": rate_e989,
-}
 
 
 def _try_rating(rate: Callable[..., Rating], spectrum: BandSpectrum, limited: tuple[bool, ...],
@@ -238,9 +273,10 @@ def _impact_ratings(result: ImpactResult, survey: Survey) -> tuple[tuple[RatedSp
     return _collect([
         _try_rating(rate_iso717_2, result.standardized_impact_level_db, limited, "L'nT,w"),
         _try_rating(rate_iso717_2, result.normalized_impact_level_db, limited, "L'n,w"),
-        # ASTM E1007 with E989 (names from memory): AIIC from ANISPL, NISR from NISPL (= L'nT), ISR from ISPL.
+        # ASTM E1007 with E989: AIIC from ANISPL, NISR from RTNISPL (T-normalised ISPL, = L'nT); ISR from
+        # ISPL is not offered here. E1007 names other than RTNISPL are from memory.
         _try_rating(rate_e989, anispl, limited, "AIIC"),
-        _try_rating(rate_e989, _renamed(result.standardized_impact_level_db, "NISPL"), limited, "NISR"),
+        _try_rating(rate_e989, _renamed(result.standardized_impact_level_db, "RTNISPL"), limited, "NISR"),
     ])
 
 
@@ -258,25 +294,31 @@ def _verdict(survey: Survey, result: AirborneResult | ImpactResult, rated: tuple
                                     "Check the requirement matches the test type, and measure the bands the "
                                     "rating needs."),)
     rating, spectrum = match.rating, match.spectrum
-    rate = _RATERS[rating.standard]
-
-    def precise(values: BandSpectrum) -> float:
-        fitted = rate(values, descriptor=rating.descriptor)
-        if term is not None:
-            return fitted.adapted_precise_db[term]
-        return fitted.single_number_precise_db if fitted.single_number_precise_db is not None \
-            else float(fitted.single_number_db)
-
     include_t = requirement.descriptor not in ("NIC", "ISR")  # only these carry no T term
     errors = band_standard_error_db(result, include_reverberation=include_t).select(spectrum.nominal_hz)
-    measurement_u = propagate_to_single_number(precise, spectrum, errors, draws=1000)
-    combined = CombinedUncertainty(table_uncertainty(rating.descriptor, situation=survey.uncertainty_situation),
-                                   measurement_u)
+    measurement_u = measurement_uncertainty(rating.standard, spectrum, errors, term=term)
+    table = single_number_uncertainty(rating.descriptor, term, situation=survey.uncertainty_situation)
+    combined = CombinedUncertainty(table, measurement_u)
+    findings: tuple[Finding, ...] = ()
+    if table.standard_uncertainty_db is None:
+        findings = (Finding("uncertainty_table_row_missing", "warning",
+                            f"ISO 12999-1 gives no single-number uncertainty for {requirement.quantity}; the "
+                            "verdict's u is this test's own spread only and misses the between-team part",
+                            "Use a requirement ISO 12999-1 covers (an ISO 717 rating) or state the uncertainty "
+                            "separately."),)
     if options.decision_rule == "guarded":
-        value_db = precise(spectrum)
+        value_db = _precise_value(rating, term)
     else:
         value_db = float(rating.single_number_db + (rating.adaptation_terms_db[term] if term else 0))
     bound = (rating.adaptation_term_bounds.get(term) if term else rating.bound) or "exact"
     verdict = decide(requirement, value_db, combined, rule=options.decision_rule,
                      coverage_factor=options.coverage_factor, bound=bound)
-    return verdict, combined, ()
+    return verdict, combined, findings
+
+
+def _precise_value(rating: Rating, term: str | None) -> float:
+    """The value uncertainty work uses: the 0.1 dB rating, or the unrounded rating + term."""
+    if term is not None:
+        return rating.adapted_precise_db[term]
+    return rating.single_number_precise_db if rating.single_number_precise_db is not None \
+        else float(rating.single_number_db)

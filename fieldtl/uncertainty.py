@@ -1,16 +1,18 @@
 """Uncertainty of single-number results and the verdict against a requirement.
 
-Three parts: (1) a table standard uncertainty by ISO 12999-1 situation A, B or C, whose numbers
-here are PLACEHOLDERS (the real ISO 12999-1 values were not verified, facts sheet 9); (2) the
-measurement's own spread propagated to the single number by Monte Carlo; (3) the requirement
-parser and a configurable decision rule ("guarded" or "shared risk").
+Three parts: (1) the ISO 12999-1:2020 single-number value for the requirement's quantity and
+situation (Table 3 airborne, Table 5 impact; :mod:`fieldtl.iso12999`); (2) the measurement's own
+spread (standard errors of the band means from positions and decays) carried to the single number
+with the analytic sensitivities of ISO 12999-1 Annex B, both with independent bands and with fully
+correlated bands; (3) the requirement parser and a configurable decision rule ("guarded" or
+"shared risk"). The verdict's u combines (1) and the correlated form of (2) in quadrature.
 """
 
 from __future__ import annotations
 
 import math
 import re
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
 from typing import Literal
@@ -21,74 +23,20 @@ from fieldtl.bands import BandSpectrum, require_same_bands
 from fieldtl.errors import InputError
 from fieldtl.insulation.airborne import AirborneResult
 from fieldtl.insulation.impact import ImpactResult
+from fieldtl.iso12999 import SITUATIONS, TableUncertainty, propagate, single_number_sensitivity
 
-Situation = Literal["A", "B", "C"]
+__all__ = ["SITUATIONS", "CombinedUncertainty", "MeasurementUncertainty", "Requirement", "TableUncertainty",
+           "Verdict", "band_standard_error_db", "decide", "measurement_uncertainty", "parse_requirement"]
+
 DecisionRule = Literal["guarded", "shared_risk"]
 Bound = Literal["exact", "lower", "upper"]
 Outcome = Literal["pass", "fail", "undecided"]
 Direction = Literal[">=", "<="]
 
-SITUATIONS: Mapping[str, str] = MappingProxyType({  # ISO 12999-1 situations (facts sheet 9, from memory)
-    "A": "an element characterised at different sites by different teams (reproducibility)",
-    "B": "the same building location measured by different teams and equipment",
-    "C": "the same location, team and equipment, measurement repeated (repeatability)",
-})
-
-PLACEHOLDER_NOTE = "placeholder, not from ISO 12999-1 — set from your copy of the standard"
-
-# Standard uncertainties of single numbers, dB, by situation and descriptor ("*" = any descriptor).
-# PLACEHOLDER, NOT FROM ISO 12999-1 — SET FROM YOUR COPY OF THE STANDARD. Only their order
-# A > B > C and "of the order of 1 dB" (facts sheet 9, from memory, low confidence) are intended.
-SINGLE_NUMBER_UNCERTAINTY_DB: Mapping[str, Mapping[str, float]] = MappingProxyType({
-    "A": MappingProxyType({"*": 1.5}),
-    "B": MappingProxyType({"*": 1.0}),
-    "C": MappingProxyType({"*": 0.5}),
-})
-SINGLE_NUMBER_UNCERTAINTY_SOURCE = PLACEHOLDER_NOTE
-
-ONE_SIDED_95_K = 1.65  # one-sided 95 % coverage factor (facts sheet 9; normal distribution)
-TWO_SIDED_95_K = 1.96  # two-sided 95 % coverage factor (facts sheet 9; normal distribution)
-_DECISION_TOLERANCE_DB = 1e-9  # X - U exactly at the limit counts as at the limit (float noise only)
-
-
-# --- (1) table uncertainty -------------------------------------------------------------------------
-
-@dataclass(frozen=True, slots=True)
-class TableUncertainty:
-    """A standard uncertainty read from a table, with where the number came from."""
-
-    descriptor: str
-    situation: Situation
-    standard_uncertainty_db: float
-    source: str
-
-    def describe(self) -> str:
-        return (f"table u = {self.standard_uncertainty_db:.2f} dB for {self.descriptor}, situation "
-                f"{self.situation} ({SITUATIONS[self.situation]}); source: {self.source}")
-
-
-def table_uncertainty(descriptor: str, *, situation: Situation = "B",
-                      table: Mapping[str, Mapping[str, float]] | None = None,
-                      source: str | None = None) -> TableUncertainty:
-    """The standard uncertainty of ``descriptor`` (e.g. "DnT,w + Ctr") for an ISO 12999-1 situation.
-
-    Without ``table`` the module's SINGLE_NUMBER_UNCERTAINTY_DB is read (at call time) and its
-    source is the placeholder note. With your own ``table``, say where it came from in ``source``.
-    Situation B is the usual one for a field compliance test (facts sheet 9, from memory).
-    """
-    if situation not in SITUATIONS:
-        raise InputError(f"uncertainty situation must be A, B or C, got {situation!r}")
-    if table is None:
-        table, default_source = SINGLE_NUMBER_UNCERTAINTY_DB, SINGLE_NUMBER_UNCERTAINTY_SOURCE
-    else:
-        default_source = "user-supplied table (source not stated)"
-    row = table.get(situation, {})
-    value = row.get(descriptor, row.get("*"))
-    if value is None:
-        raise InputError(f"uncertainty table has no value for {descriptor!r} in situation {situation}")
-    if not math.isfinite(value) or value < 0.0:
-        raise InputError(f"uncertainty table value for {descriptor!r} must be >= 0 dB, got {value!r}")
-    return TableUncertainty(descriptor, situation, float(value), source or default_source)
+ONE_SIDED_95_K = 1.65  # one-sided 95 % coverage factor (ISO 12999-1 conformity test; normal distribution)
+TWO_SIDED_95_K = 1.96  # two-sided 95 % coverage factor (normal distribution)
+_DECISION_TOLERANCE_DB = 1e-9  # X - k u within this of the limit counts as exactly at it (float noise only)
+VERDICT_PROPAGATION = "correlated"   # the measurement part of the verdict's u: bands fully correlated
 
 
 # --- (2) the measurement's own spread --------------------------------------------------------------
@@ -116,64 +64,68 @@ def band_standard_error_db(result: AirborneResult | ImpactResult, *,
 
 @dataclass(frozen=True, slots=True)
 class MeasurementUncertainty:
-    """The spread of the band results carried through the rating to the single number."""
+    """The spread of the band results carried to the single number, both ways (ISO 12999-1 Annex B)."""
 
-    standard_uncertainty_db: float
-    draws: int
+    uncorrelated_db: float    # root-sum-square of sensitivity x band standard error
+    correlated_db: float      # linear sum of sensitivity x band standard error
     bands_without_spread_hz: tuple[float, ...]
+
+    @property
+    def standard_uncertainty_db(self) -> float:
+        """The form the verdict uses: bands fully correlated (one position moves every band)."""
+        return self.correlated_db
 
     def describe(self) -> str:
         missing = (f"; no spread known at {', '.join(f'{f:g}' for f in self.bands_without_spread_hz)} Hz "
                    "(taken as 0)") if self.bands_without_spread_hz else ""
-        return (f"measurement u = {self.standard_uncertainty_db:.2f} dB (band standard errors of the "
-                f"mean carried through the rating by {self.draws} Monte Carlo draws, bands independent"
-                f"{missing})")
+        return (f"this test's own spread (standard errors of the band means from positions and decays, "
+                f"carried through the rating with the analytic sensitivities of ISO 12999-1 Annex B): "
+                f"{self.correlated_db:.2f} dB with bands fully correlated (used), "
+                f"{self.uncorrelated_db:.2f} dB if the bands were independent{missing}")
 
 
-def propagate_to_single_number(rating: Callable[[BandSpectrum], float], spectrum: BandSpectrum,
-                               band_standard_error: BandSpectrum, *, draws: int = 2000,
-                               seed: int = 12999) -> MeasurementUncertainty:
-    """Standard deviation of ``rating`` when each band varies by its standard error.
+def measurement_uncertainty(standard: str, spectrum: BandSpectrum, band_standard_error: BandSpectrum, *,
+                            term: str | None = None) -> MeasurementUncertainty:
+    """Carry ``band_standard_error`` through the rating of ``spectrum`` (+ ``term``) analytically.
 
-    Monte Carlo in the manner of GUM Supplement 1 (JCGM 101, from memory): every band gets an
-    independent normal perturbation of its standard error; the result is the sample standard
-    deviation of ``rating`` over ``draws`` perturbed spectra (fixed ``seed``: same inputs, same
-    answer). Chosen over finite differences because ISO 717 ratings are step functions of the band
-    values. Pass a rating with 0.1 dB resolution (ISO 717-1:2020); a 1 dB-step rating mostly
-    measures its own rounding. Does not model correlation between bands (one position shifts all
-    bands together), so it can understate u; bands without a standard error are not varied.
+    Sensitivities from :func:`fieldtl.iso12999.single_number_sensitivity`; bands without a
+    standard error count as 0 and are listed. No draws: the same inputs always give the same answer.
     """
     require_same_bands(spectrum, band_standard_error)
-    if draws < 2:
-        raise InputError(f"Monte Carlo draws must be at least 2, got {draws}")
-    values = spectrum.as_array()
-    errors = band_standard_error.as_array()
-    unknown = np.isnan(errors) & ~np.isnan(values)
-    sigma = np.where(np.isnan(errors), 0.0, errors)
-    noise = np.random.default_rng(seed).standard_normal((draws, values.size)) * sigma
-    ratings = [rating(BandSpectrum.from_array(spectrum.nominal_hz, values + row, spectrum.unit,
-                                              spectrum.quantity)) for row in noise]
-    return MeasurementUncertainty(float(np.std(ratings, ddof=1)), draws,
-                                  tuple(f for f, flag in zip(spectrum.nominal_hz, unknown) if flag))
+    bands_hz, coefficients = single_number_sensitivity(standard, spectrum, term)
+    errors = band_standard_error.select(bands_hz).as_array()
+    propagated = propagate(coefficients, errors)
+    unknown = tuple(f for f, e, c in zip(bands_hz, errors, coefficients) if not np.isfinite(e) and c != 0.0)
+    return MeasurementUncertainty(propagated.uncorrelated_db, propagated.correlated_db, unknown)
 
 
 @dataclass(frozen=True, slots=True)
 class CombinedUncertainty:
-    """u = sqrt(u_table² + u_meas²), with the parts kept for the report."""
+    """u = sqrt(u_table² + u_meas²) with u_meas in its correlated form; the parts kept for the report."""
 
     table: TableUncertainty
     measurement: MeasurementUncertainty | None
 
     @property
+    def table_db(self) -> float:
+        return self.table.standard_uncertainty_db or 0.0
+
+    @property
+    def measurement_db(self) -> float:
+        return 0.0 if self.measurement is None else self.measurement.standard_uncertainty_db
+
+    @property
     def standard_uncertainty_db(self) -> float:
-        u_meas = 0.0 if self.measurement is None else self.measurement.standard_uncertainty_db
-        return math.hypot(self.table.standard_uncertainty_db, u_meas)
+        return math.hypot(self.table_db, self.measurement_db)
 
     def describe(self) -> str:
         parts = [self.table.describe()]
         if self.measurement is not None:
             parts.append(self.measurement.describe())
-        return f"combined u = {self.standard_uncertainty_db:.2f} dB from " + "; ".join(parts)
+        how = (f"u = sqrt({self.table_db:.2f}² + {self.measurement_db:.2f}²) = "
+               f"{self.standard_uncertainty_db:.2f} dB (table value and this test's correlated spread "
+               "combined in quadrature)")
+        return how + " from " + "; ".join(parts)
 
 
 # --- (3) requirements and the verdict ----------------------------------------------------------------
@@ -287,7 +239,7 @@ class Verdict:
     expanded_uncertainty_db: float
     outcome: Outcome
     statement: str  # the rule, the numbers and the outcome in plain words
-    uncertainty_note: str  # where u came from, including the placeholder marking when it applies
+    uncertainty_note: str  # where u came from: the ISO 12999-1 table, row and situation, and the spread
 
 
 def decide(requirement: Requirement, value_db: float, uncertainty: CombinedUncertainty, *,
@@ -295,8 +247,10 @@ def decide(requirement: Requirement, value_db: float, uncertainty: CombinedUncer
            bound: Bound = "exact") -> Verdict:
     """Pass, fail or undecided for ``value_db`` against ``requirement``.
 
-    "guarded" (k = 1.65 one-sided 95 % by default): for ">=" pass if X - k u >= limit, fail if
-    X + k u < limit, else undecided; mirrored for "<=" (facts sheet 9, from memory).
+    "guarded" (k = 1.65 one-sided 95 % by default): for ">=" pass if X - k u > limit (strict, as
+    ISO 12999-1 writes its conformity test; X - k u exactly at the limit is not a pass), fail if
+    X + k u < limit, else undecided; mirrored for "<=": pass if X + k u < limit, fail if
+    X - k u > limit.
     "shared_risk": pass if X meets the limit, else fail; U (k = 1.96 by default) is only reported.
     ``bound`` says the value is a bound because bands were background-limited ("lower" airborne,
     "upper" impact). When the true value can only be better than X (lower bound with ">=", upper
@@ -316,11 +270,11 @@ def decide(requirement: Requirement, value_db: float, uncertainty: CombinedUncer
     if not math.isfinite(k) or k < 0.0:
         raise InputError(f"coverage factor must be >= 0, got {coverage_factor!r}")
     u = uncertainty.standard_uncertainty_db
-    expanded = k * u  # U = k u (facts sheet 9)
+    expanded = k * u  # U = k u (ISO 12999-1)
     sign = 1.0 if requirement.direction == ">=" else -1.0  # mirror "<=" onto ">="
     margin = sign * (x - requirement.limit_db)  # > 0: better than the limit
     if rule == "guarded":
-        if margin - expanded >= -_DECISION_TOLERANCE_DB:
+        if margin - expanded > _DECISION_TOLERANCE_DB:   # strict, as ISO 12999-1 writes conformity
             outcome: Outcome = "pass"
         elif margin + expanded < -_DECISION_TOLERANCE_DB:
             outcome = "fail"
@@ -344,8 +298,8 @@ def _statement(req: Requirement, x: float, bound: Bound, rule: DecisionRule, k: 
     k_text = {ONE_SIDED_95_K: ", one-sided 95 %", TWO_SIDED_95_K: ", two-sided 95 %"}.get(k, "")
     if rule == "guarded":
         worse, better = ("-", "+") if op == ">=" else ("+", "-")
-        fails = "<" if op == ">=" else ">"
-        text = (f"Guarded decision (k = {k:.2f}{k_text}): pass when {q} {worse} k·u {op} {lim}, fail when "
+        passes, fails = (">", "<") if op == ">=" else ("<", ">")
+        text = (f"Guarded decision (k = {k:.2f}{k_text}): pass when {q} {worse} k·u {passes} {lim}, fail when "
                 f"{q} {better} k·u {fails} {lim}, otherwise undecided. ")
     else:
         text = (f"Shared-risk decision: pass when {q} {op} {lim}; the expanded uncertainty "

@@ -82,9 +82,10 @@ def test_verdict_fails_below_the_requirement_and_undecided_near_it(tmp_path):
     failing = _assess(_survey(tmp_path, l2_db=60.0))          # D 35 -> DnT 37.0 flat -> DnT,w 37
     assert failing.verdict.outcome == "fail"
     near = _assess(_survey(tmp_path, l2_db=45.0, requirement="DnT,w >= 52.5"))
-    # 0.1 dB value 52.0 against 52.5 with placeholder u 1.0 dB (situation B), k 1.65: undecided.
+    # 0.1 dB value 52.0 against 52.5 with u 0.9 dB (ISO 12999-1:2020 Table 3, Rw row, situation B,
+    # as transcribed), k 1.65: 52.0 - 1.49 < 52.5 < 52.0 + 1.49 -> undecided.
     assert near.verdict.outcome == "undecided"
-    assert "placeholder" in near.verdict.statement
+    assert "ISO 12999-1:2020 Table 3" in near.verdict.statement and "situation B" in near.verdict.statement
 
 
 def test_missing_positions_and_calibration_are_findings(tmp_path):

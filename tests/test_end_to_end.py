@@ -68,7 +68,8 @@ def test_single_numbers_match_the_truth(result):
 def test_nothing_is_limited_and_the_verdict_is_stated(result):
     assert not any(result["limited"])
     assert result["verdict"]["result"] == "pass"
-    assert "placeholder" in result["verdict"]["rule"]
+    # the verdict names the ISO 12999-1:2020 table and the situation it used (field default B)
+    assert "ISO 12999-1:2020 Table 3" in result["verdict"]["rule"] and "situation B" in result["verdict"]["rule"]
 
 
 LI_TRUE = BandSpectrum(BANDS, tuple(62.0 - 0.4 * i for i in range(len(BANDS))), "dB", "Li")

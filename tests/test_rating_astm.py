@@ -157,13 +157,21 @@ def test_bounds_for_limited_bands():
 
 
 @pytest.mark.parametrize(("quantity", "rate", "expected"), [
-    ("NR", rate_e413, "NIC"), ("NNR", rate_e413, "NNIC"), ("ATL", rate_e413, "ASTC"), ("FTL", rate_e413, "FSTC"),
-    ("ANISPL", rate_e989, "AIIC"), ("NISPL", rate_e989, "NISR"), ("ISPL", rate_e989, "ISR")])
+    ("NR", rate_e413, "NIC"), ("NNR", rate_e413, "NNIC"), ("ATL", rate_e413, "ASTC"),
+    ("ANISPL", rate_e989, "AIIC"), ("RTNISPL", rate_e989, "NISR"), ("ISPL", rate_e989, "ISR")])
 def test_rating_names_follow_the_quantity(quantity, rate, expected):
-    # E336 / E1007 names (facts sheet 5.1 [V], 5.3 [M-med]).
+    # ASTM E336 / E413 names; ASTM E1007: RTNISPL -> NISR (ANISPL/ISPL names from memory).
     bands_hz = THIRD_OCTAVES_125_4000_HZ if rate is rate_e413 else THIRD_OCTAVES_100_3150_HZ
     spectrum = BandSpectrum(bands_hz, (50.0,) * 16, "dB", quantity)
     assert rate(spectrum).descriptor == expected
+
+
+def test_fstc_is_not_offered_for_a_field_test():
+    # the current ASTM E413 lists no FSTC field rating; an FTL spectrum gets no rating name
+    with pytest.raises(InputError, match="FTL: ASTM E413 has no rating name"):
+        rate_e413(BandSpectrum(THIRD_OCTAVES_125_4000_HZ, (50.0,) * 16, "dB", "FTL"))
+    with pytest.raises(InputError, match="NISPL: ASTM E989 has no rating name"):
+        rate_e989(BandSpectrum(THIRD_OCTAVES_100_3150_HZ, (50.0,) * 16, "dB", "NISPL"))
 
 
 def test_bad_inputs_are_input_errors():

@@ -82,12 +82,14 @@ def test_single_numbers_and_band_values_of_the_worked_example(worked_example):
     assert re.search(r"R'w ISO 717-1 51 ", text)
 
 
-def test_verdict_statement_and_placeholder_uncertainty(worked_example):
+def test_verdict_statement_names_the_iso_12999_table_and_situation(worked_example):
     text = _flat("\n".join(worked_example))
-    # DnT,w + Ctr = 52.0 against 45 with the placeholder u = 1.0 dB, k = 1.65: 52.0 - 1.65 >= 45 -> pass.
+    # DnT,w + Ctr = 52.0 against 45 with u = 1.1 dB (ISO 12999-1:2020 Table 3, +Ctr row, situation B,
+    # as transcribed), k = 1.65: 52.0 - 1.82 > 45 -> pass.
     assert "PASS against the requirement DnT,w + Ctr >= 45 dB" in text
     assert "Guarded decision (k = 1.65" in text
-    assert "placeholder, not from ISO 12999-1" in text
+    assert "ISO 12999-1:2020 Table 3" in text and "situation B" in text
+    assert "placeholder" not in text.lower()
 
 
 def test_cautions_near_the_top_and_on_every_page(worked_example):

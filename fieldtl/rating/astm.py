@@ -1,9 +1,11 @@
-"""ASTM E413 (NIC, NNIC, ASTC, FSTC) and ASTM E989 (AIIC, NISR, ISR) ratings of one-third octaves.
+"""ASTM E413 (NIC, NNIC, ASTC) and ASTM E989 (AIIC, NISR, ISR) ratings of one-third octaves.
 
 Pure arithmetic, no I/O. The contours, the 32 dB sum rule and the 8 dB single-band rule are
-[V] in the project's facts sheet (5.2, 5.3). From memory or not verified: the E1007 names of the
-field impact ratings (facts sheet 5.3, [M-med]); and whether E413/E989 round band values to whole
-decibels before fitting (facts sheet 5.2, not verified). This module does NOT round to whole
+[V] in the project's facts sheet (5.2, 5.3). E1007's T-normalised quantity is RTNISPL (rated as
+NISR). From memory or not verified: the other E1007 names (ANISPL/AIIC, ISPL/ISR), and whether
+E413/E989 round band values to whole decibels before fitting (ASTM rounding, not verified).
+FSTC (from FTL, the shielded field test of E336-16) is not offered: the current E413 does not list
+it as a field rating. This module does NOT round to whole
 decibels: it uses the values to 0.1 dB like the ISO 717 ratings, so a 8.4 dB deficiency breaks
 the 8 dB rule here where whole-decibel inputs might not.
 """
@@ -32,10 +34,10 @@ _MAX_SUM_TENTHS = 320      # sum of deficiencies (E413) or excesses (E989) <= 32
 _MAX_SINGLE_TENTHS = 80    # no single deficiency / excess above 8 dB (same sources)
 _IIC_BASE_DB = 110         # IIC-style number = 110 - contour value at 500 Hz (E989; facts sheet 5.3 [V])
 
-# E336 quantity -> E413 rating (facts sheet 5.1 [V]); FTL/FSTC from E336-16 (dropped later, facts sheet 5.1).
-E413_DESCRIPTORS = {"NR": "NIC", "NNR": "NNIC", "ATL": "ASTC", "FTL": "FSTC"}
-# E1007 quantity -> E989 rating (facts sheet 5.3, names from memory [M-med]).
-E989_DESCRIPTORS = {"ANISPL": "AIIC", "NISPL": "NISR", "ISPL": "ISR"}
+# E336 quantity -> E413 rating (ASTM E336 / E413).
+E413_DESCRIPTORS = {"NR": "NIC", "NNR": "NNIC", "ATL": "ASTC"}
+# E1007 quantity -> E989 rating: RTNISPL -> NISR (E1007); ANISPL -> AIIC and ISPL -> ISR from memory.
+E989_DESCRIPTORS = {"ANISPL": "AIIC", "RTNISPL": "NISR", "ISPL": "ISR"}
 
 
 def _descriptor(spectrum: BandSpectrum, table: dict[str, str], descriptor: str | None, standard: str) -> str:
@@ -74,7 +76,7 @@ def _rate_contour(spectrum: BandSpectrum, contour: BandSpectrum, *, standard: st
 
 def rate_e413(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = None,
               descriptor: str | None = None) -> Rating:
-    """NIC / NNIC / ASTC / FSTC of an NR / NNR / ATL / FTL spectrum (ASTM E413 contour, 125-4000 Hz).
+    """NIC / NNIC / ASTC of an NR / NNR / ATL spectrum (ASTM E413 contour, 125-4000 Hz).
 
     The contour is raised in 1 dB steps to the highest position where the deficiencies (data below
     the contour) sum to at most 32 dB and none exceeds 8 dB; the rating is its value at 500 Hz.
@@ -92,7 +94,7 @@ def rate_e413(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = None,
 
 def rate_e989(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = None,
               descriptor: str | None = None) -> Rating:
-    """AIIC / NISR / ISR of an ANISPL / NISPL / ISPL spectrum (ASTM E989 contour, 100-3150 Hz).
+    """AIIC / NISR / ISR of an ANISPL / RTNISPL / ISPL spectrum (ASTM E989 contour, 100-3150 Hz).
 
     The contour is lowered in 1 dB steps to the lowest position where the excesses (data above the
     contour) sum to at most 32 dB and none exceeds 8 dB; the rating is 110 minus its value at

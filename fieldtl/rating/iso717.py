@@ -121,7 +121,7 @@ AIRBORNE_SPECTRA_OCTAVES: Mapping[str, BandSpectrum] = _spectra({
 }, 1)
 # Band ranges of the impact adaptation terms (ISO 717-2 Annex A; facts sheet 4.4 [V] for one-third
 # octaves, octave ranges from memory).
-_IMPACT_TERM_RANGES_HZ: dict[int, dict[str, tuple[float, float]]] = {
+IMPACT_TERM_RANGES_HZ: dict[int, dict[str, tuple[float, float]]] = {
     3: {"CI": (100, 2500), "CI,50-2500": (50, 2500)},
     1: {"CI": (125, 2000), "CI,50-2500": (63, 2000)},
 }
@@ -324,7 +324,7 @@ def rate_iso717_2(spectrum: BandSpectrum, *, limited: Sequence[bool] | None = No
     terms_db: dict[str, int] = {}
     term_bounds: dict[str, Bound | None] = {}
     adapted_db: dict[str, float] = {}
-    for name, (low_hz, high_hz) in _IMPACT_TERM_RANGES_HZ[fraction].items():
+    for name, (low_hz, high_hz) in IMPACT_TERM_RANGES_HZ[fraction].items():
         bands_hz = nominal_bands_hz(low_hz, high_hz, fraction=fraction)
         if not has_levels(spectrum, bands_hz):
             continue
