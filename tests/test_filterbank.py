@@ -8,7 +8,8 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from fieldtl.analysis.filterbank import (BankStream, anti_alias_sos, design_filter_bank, highest_band_hz)
+from fieldtl.analysis.filterbank import (BankStream, anti_alias_sos, band_sos, design_filter_bank,
+                                         highest_band_hz)
 from fieldtl.bands import nominal_bands_hz
 from fieldtl.errors import InputError
 
@@ -106,6 +107,32 @@ def test_chain_is_0_db_at_the_centre_and_half_power_at_the_edges(sample_rate_hz)
             np.array([band.centre_hz, band.low_hz, band.high_hz]))[bank.bands.index(band)])
         assert centre == pytest.approx(0.0, abs=1e-9)
         assert (low, high) == pytest.approx((-3.0103, -3.0103), abs=0.05)
+
+
+def test_bank_is_designed_once_per_rate_and_range_and_shares_read_only_arrays():
+    # issue 10 item 3: 23 level takes at 48 kHz design the bank once; nothing shared can be changed
+    first = design_filter_bank(sample_rate_hz=48_000.0, low_hz=50.0, high_hz=5000.0)
+    assert design_filter_bank(sample_rate_hz=48_000, low_hz=50, high_hz=5000) is first
+    assert design_filter_bank(sample_rate_hz=44_100.0, low_hz=50.0, high_hz=5000.0) is not first
+    assert design_filter_bank(sample_rate_hz=48_000.0, low_hz=63.0, high_hz=5000.0) is not first
+    assert design_filter_bank(sample_rate_hz=48_000.0, fraction=1, low_hz=63.0, high_hz=4000.0) is not first
+    with pytest.raises(ValueError, match="read-only"):
+        first.bands[0].sos[0, 0] = 1.0
+    assert anti_alias_sos() is anti_alias_sos()
+    with pytest.raises(ValueError, match="read-only"):
+        anti_alias_sos()[0, 0] = 1.0
+
+
+def test_band_sos_hands_out_a_writable_copy_of_one_design():
+    # decay and calibration code filter with band_sos directly; scipy's sosfilt needs a writable array
+    first = band_sos(1000.0, sample_rate_hz=48_000.0)
+    second = band_sos(1000.0, sample_rate_hz=48_000.0)
+    assert first is not second and np.array_equal(first, second)
+    first[0, 0] = 0.0
+    assert band_sos(1000.0, sample_rate_hz=48_000.0)[0, 0] == second[0, 0] != 0.0
+    # analytic: a Butterworth band-pass is -3.0103 dB at its design edges (IEC 61260-1 edges, 5.5)
+    _, response = signal.sosfreqz(second, worN=[891.251, 1122.018], fs=48_000.0)
+    assert 20 * np.log10(np.abs(response)) == pytest.approx([-3.0103, -3.0103], abs=1e-3)
 
 
 def test_anti_alias_low_pass_stop_band_is_90_db_down():

@@ -63,6 +63,16 @@ def test_digital_filter_follows_the_analytic_curve_to_20_khz(weighting, sample_r
     assert np.max(np.abs(error_db)) < 0.01
 
 
+def test_weighting_filter_is_designed_once_per_rate_and_shared_read_only():
+    # issue 10 item 3: the least-squares fit runs once per weighting and rate in a process
+    a_48k = weighting_sos("A", sample_rate_hz=48_000.0)
+    assert weighting_sos("A", sample_rate_hz=48_000) is a_48k
+    assert weighting_sos("A", sample_rate_hz=44_100.0) is not a_48k
+    assert weighting_sos("C", sample_rate_hz=48_000.0) is not a_48k
+    with pytest.raises(ValueError, match="read-only"):
+        a_48k[0, 0] = 1.0
+
+
 def test_unknown_weighting_and_low_rate_are_refused():
     with pytest.raises(InputError, match="'Z'"):
         weighting_sos("Z", sample_rate_hz=48_000.0)  # type: ignore[arg-type]

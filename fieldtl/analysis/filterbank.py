@@ -66,31 +66,40 @@ def band_sos(nominal_hz: float, *, sample_rate_hz: float, fraction: Fraction = 3
              order: int = DEFAULT_ORDER) -> np.ndarray:
     """Second-order sections of a Butterworth band-pass between the IEC 61260-1 band edges.
 
-    Designed at the exact (base-ten) mid-band frequency of the nominal band ``nominal_hz``.
-    Does not check the class-1 mask; see the filter tests for that.
+    Designed at the exact (base-ten) mid-band frequency of the nominal band ``nominal_hz``, once
+    per process for each band, rate and order; returns a fresh copy of that design. Does not
+    check the class-1 mask; see the filter tests for that.
     """
     low_hz, high_hz = band_edges_hz(nominal_hz, fraction=fraction)
     if high_hz >= sample_rate_hz / 2:
         raise InputError(f"{nominal_hz} Hz band needs a sample rate above {2 * high_hz:.0f} Hz, "
                          f"got {sample_rate_hz:g} Hz")
-    return signal.butter(order, [low_hz, high_hz], btype="bandpass", fs=sample_rate_hz, output="sos")
+    return _band_sos(low_hz, high_hz, float(sample_rate_hz), order).copy()   # writable: sosfilt needs one
 
 
+@functools.lru_cache(maxsize=256)
+def _band_sos(low_hz: float, high_hz: float, sample_rate_hz: float, order: int) -> np.ndarray:
+    return read_only(signal.butter(order, [low_hz, high_hz], btype="bandpass", fs=sample_rate_hz, output="sos"))
+
+
+@functools.cache
 def anti_alias_sos() -> np.ndarray:
     """Elliptic low-pass run before every decimation by 2, normalised to the input rate.
 
     Pass band to 0.38 of the output rate (the largest EDGE_FRACTION), stop band from 0.6 of it;
     in units of the input Nyquist frequency (which equals the output rate) these are 0.38 and
-    0.6. Returns a fresh copy.
+    0.6. Designed once per process; the array is shared and read-only (``scipy.signal.sosfilt``
+    refuses read-only sections: filter with a copy).
     """
-    return _anti_alias_sos().copy()
-
-
-@functools.cache
-def _anti_alias_sos() -> np.ndarray:
     order, _ = signal.ellipord(_ALIAS_PASS_FRACTION, _ALIAS_STOP_FRACTION, ANTI_ALIAS_RIPPLE_DB, ANTI_ALIAS_STOP_DB)
-    return signal.ellip(order, ANTI_ALIAS_RIPPLE_DB, ANTI_ALIAS_STOP_DB, _ALIAS_PASS_FRACTION,
-                        output="sos")
+    return read_only(signal.ellip(order, ANTI_ALIAS_RIPPLE_DB, ANTI_ALIAS_STOP_DB, _ALIAS_PASS_FRACTION,
+                                  output="sos"))
+
+
+def read_only(values: np.ndarray) -> np.ndarray:
+    """``values`` marked read-only (for arrays shared through a design cache), returned."""
+    values.flags.writeable = False
+    return values
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -102,7 +111,7 @@ class BandFilter:
     low_hz: float             # band edges (IEC 61260-1:2014 5.5)
     high_hz: float
     stage: int                # runs at sample_rate_hz / 2**stage
-    sos: np.ndarray = field(repr=False)   # do not modify; whole chain gives 0 dB at centre_hz
+    sos: np.ndarray = field(repr=False)   # read-only; whole chain gives 0 dB at centre_hz
     settle_s: float           # start-up transient discarded: SETTLE_BANDWIDTHS / (high_hz - low_hz)
 
     @property
@@ -145,7 +154,7 @@ class FilterBank:
             for i, band in enumerate(self.bands):
                 if band.stage == stage:
                     out[i] = chain * _magnitude(band.sos, folded_hz, rate_hz)
-            chain = chain * _magnitude(_anti_alias_sos(), folded_hz, rate_hz)
+            chain = chain * _magnitude(anti_alias_sos(), folded_hz, rate_hz)
             folded_hz = _fold_hz(folded_hz, rate_hz / 2)
         return out
 
@@ -156,7 +165,8 @@ def design_filter_bank(*, sample_rate_hz: float, fraction: Fraction = 3, low_hz:
 
     Raises InputError when a band's upper edge is above EDGE_FRACTION of the sample rate
     (the 10 kHz one-third octave needs at least 29.5 kHz, the 8 kHz octave 46.8 kHz).
-    Does not filter anything.
+    Designed once per process for each rate, fraction and range (a bank holds only read-only
+    arrays, so every caller may share it). Does not filter anything.
     """
     if fraction not in (1, 3):
         raise InputError(f"fraction must be 1 (octaves) or 3 (one-third octaves), got {fraction}")
@@ -168,8 +178,12 @@ def design_filter_bank(*, sample_rate_hz: float, fraction: Fraction = 3, low_hz:
     if top_edge_hz > edge_fraction * sample_rate_hz:
         raise InputError(f"{nominals[-1]:g} Hz band needs a sample rate of at least "
                          f"{top_edge_hz / edge_fraction:.0f} Hz, got {sample_rate_hz:g} Hz")
-    return FilterBank(float(sample_rate_hz), fraction,
-                      tuple(_band_filter(f, sample_rate_hz, fraction) for f in nominals))
+    return _design_filter_bank(float(sample_rate_hz), fraction, nominals)
+
+
+@functools.lru_cache(maxsize=16)
+def _design_filter_bank(sample_rate_hz: float, fraction: Fraction, nominals: tuple[float, ...]) -> FilterBank:
+    return FilterBank(sample_rate_hz, fraction, tuple(_band_filter(f, sample_rate_hz, fraction) for f in nominals))
 
 
 def highest_band_hz(*, sample_rate_hz: float, fraction: Fraction = 3) -> float:
@@ -199,9 +213,9 @@ def _band_filter(nominal_hz: float, sample_rate_hz: float, fraction: Fraction) -
     # mid-band frequency: IEC 61260-1:2014 5.10 states attenuation relative to fm.
     gain = _magnitude(sos, np.array([centre_hz]), rate_hz)[0]
     for k in range(stage):
-        gain *= _magnitude(_anti_alias_sos(), np.array([centre_hz]), sample_rate_hz / 2**k)[0]
+        gain *= _magnitude(anti_alias_sos(), np.array([centre_hz]), sample_rate_hz / 2**k)[0]
     sos[0, :3] /= gain
-    return BandFilter(float(nominal_hz), centre_hz, low_hz, high_hz, stage, sos,
+    return BandFilter(float(nominal_hz), centre_hz, low_hz, high_hz, stage, read_only(sos),
                       SETTLE_BANDWIDTHS / (high_hz - low_hz))
 
 
@@ -223,11 +237,13 @@ class BankStream:
     discard start-up transients or compute levels; see :mod:`fieldtl.analysis.levels`.
     """
 
-    __slots__ = ("_bank", "_alias_sos", "_band_zi", "_alias_zi", "_frames_in")
+    __slots__ = ("_bank", "_band_sos", "_alias_sos", "_band_zi", "_alias_zi", "_frames_in")
 
     def __init__(self, bank: FilterBank) -> None:
         self._bank = bank
-        self._alias_sos = anti_alias_sos()
+        # writable copies of the shared read-only designs: scipy.signal.sosfilt refuses read-only sections
+        self._band_sos = [band.sos.copy() for band in bank.bands]
+        self._alias_sos = anti_alias_sos().copy()
         self._band_zi = [np.zeros((band.sos.shape[0], 2)) for band in bank.bands]
         self._alias_zi = [np.zeros((self._alias_sos.shape[0], 2)) for _ in range(bank.stages)]
         self._frames_in = [0] * (bank.stages + 1)   # samples seen so far at each stage
@@ -244,7 +260,7 @@ class BankStream:
                 if band.stage != stage:
                     continue
                 if samples.size:
-                    filtered, self._band_zi[i] = signal.sosfilt(band.sos, samples, zi=self._band_zi[i])
+                    filtered, self._band_zi[i] = signal.sosfilt(self._band_sos[i], samples, zi=self._band_zi[i])
                 else:
                     filtered = samples
                 outputs[i] = (first, filtered)

@@ -186,7 +186,7 @@ class _Meter:
         self._bank_stream = BankStream(bank)
         self._settle_frames = [math.ceil(band.settle_s * rate_hz / 2**band.stage) for band in bank.bands]
         self._weighting_settle = math.ceil(WEIGHTING_SETTLE_S * rate_hz)
-        self._weighting = [(sos, np.zeros((sos.shape[0], 2)))
+        self._weighting = [(sos.copy(), np.zeros((sos.shape[0], 2)))   # writable copies for sosfilt
                            for sos in (weighting_sos("A", sample_rate_hz=rate_hz),
                                        weighting_sos("C", sample_rate_hz=rate_hz))]
         self._time_weighting = [(exponential_coefficient(tau, sample_rate_hz=rate_hz), np.zeros(1))

@@ -67,17 +67,17 @@ def weighting_db(weighting: Weighting, frequency_hz: ArrayLike) -> np.ndarray:
 def weighting_sos(weighting: Weighting, *, sample_rate_hz: float) -> np.ndarray:
     """Second-order sections of the digital A or C weighting filter at ``sample_rate_hz``.
 
-    Designed once per (weighting, rate) and cached; returns a fresh copy. Does not check the
-    IEC 61672-1 tolerances; see the weighting tests for that.
+    Designed once per process for each weighting and rate; the array is shared and read-only
+    (``scipy.signal.sosfilt`` refuses read-only sections: filter with a copy). Does not check the IEC 61672-1 tolerances; see the weighting tests for that.
     """
     if weighting not in ("A", "C"):
         raise InputError(f"frequency weighting must be 'A' or 'C', got {weighting!r}")
     if not (math.isfinite(sample_rate_hz) and sample_rate_hz >= 8000.0):
         raise InputError(f"A and C weighting need a sample rate of at least 8000 Hz, got {sample_rate_hz}")
-    return _weighting_sos(weighting, float(sample_rate_hz)).copy()
+    return _weighting_sos(weighting, float(sample_rate_hz))
 
 
-@functools.cache
+@functools.lru_cache(maxsize=32)
 def _weighting_sos(weighting: Weighting, sample_rate_hz: float) -> np.ndarray:
     low_pole_hz = [F1_HZ, F1_HZ] + ([F2_HZ, F3_HZ] if weighting == "A" else [])
     # Bilinear transform of s^n / Π(s + 2π fi): n zeros at 0 Hz, one per low-frequency pole.
@@ -102,7 +102,9 @@ def _weighting_sos(weighting: Weighting, sample_rate_hz: float) -> np.ndarray:
     # exact agreement with the analytic curve at the 1 kHz reference frequency
     at_1k = np.exp(-2j * np.pi * 1000.0 / sample_rate_hz)
     gain = 10 ** (weighting_db(weighting, 1000.0) / 20) / np.abs(_zpk_on_grid(zeros_z, poles_z, np.array([at_1k])))[0]
-    return signal.zpk2sos(zeros_z, poles_z, gain)
+    sos = signal.zpk2sos(zeros_z, poles_z, gain)
+    sos.flags.writeable = False
+    return sos
 
 
 def _zpk_on_grid(zeros: np.ndarray, poles: np.ndarray, unit_z: np.ndarray) -> np.ndarray:
