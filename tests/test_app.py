@@ -124,17 +124,6 @@ def test_an_invalid_upload_shows_one_clear_message_and_stores_nothing(data_dir, 
     assert not list((data_dir / "audio").glob("*.wav"))
 
 
-def test_access_code_is_asked_when_served_beyond_this_machine(data_dir, monkeypatch):
-    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
-    monkeypatch.setenv("FIELDTL_ACCESS_CODE", "4f2a9c")
-    at = _app()
-    assert at.text_input[0].label == "Access code" and at.title[0].value == "fieldtl"
-    at.text_input[0].input("wrong").run()
-    assert at.error[0].value == "That code is not right."
-    at.text_input[0].input("4f2a9c").run()
-    assert at.title[0].value == "Projects"
-
-
 def test_user_text_is_shown_literally(data_dir, monkeypatch):
     # Streamlit renders labels and captions as markdown: user text is escaped so that a link, bold
     # marks or tags typed into a name print as typed (CommonMark: a backslash makes punctuation literal).
@@ -149,3 +138,35 @@ def test_user_text_is_shown_literally(data_dir, monkeypatch):
     caption = at.caption[0].value
     assert "\\[click\\]\\(http\\://x\\) \\*\\*bold\\*\\* \\<b\\>x\\</b\\>" in caption
     assert "[click](http" not in caption
+
+
+@pytest.mark.parametrize("length, said", [(119, False), (120, True), (121, True)])   # names: at most 120
+def test_a_project_name_is_bounded_with_a_line_saying_so(data_dir, monkeypatch, length, said):
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    at = _app()
+    assert at.text_input[0].max_chars == 120                     # the browser stops typing here
+    at.text_input[0].set_value("n" * length)                     # as a client sending more would
+    _button(at, "Create project").click().run()
+    assert not at.exception
+    lines = [c.value for c in at.caption if "the most allowed" in c.value]
+    assert lines == (["Project name: 120 characters, the most allowed; anything longer was cut."] if said else [])
+    with Store.open(data_dir / "fieldtl.sqlite3") as store:
+        assert [p.name for p in store.list_projects()] == ["n" * min(length, 120)]
+
+
+def test_a_page_error_from_one_project_is_one_line_not_a_traceback(data_dir, monkeypatch):
+    # A row the code cannot read (here: the tests of the open project) stops that page's content only.
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    data_dir.mkdir(parents=True)
+    with Store.open(data_dir / "fieldtl.sqlite3") as store:
+        store.create_project("Invented")
+
+    def unreadable(self, project_id):
+        raise KeyError("setup")
+
+    monkeypatch.setattr(Store, "list_tests", unreadable)
+    at = _app()
+    assert not at.exception and at.title[0].value == "Projects"
+    assert [e.value for e in at.error] == ["This page could not show the open project (KeyError). Other projects "
+                                           "are not affected; try another test or project."]
+    assert any("accredited" in c.value for c in at.caption)         # the cautions still close the page

@@ -47,7 +47,7 @@ def fenced() -> Iterator[None]:
 
 
 def text_field(label: str, value: str = "", *, limit: int, area: bool = False, **options: object) -> str:
-    """A text input (or area) of at most ``limit`` characters, with a line saying so when text was cut.
+    """A text input (or area) of at most ``limit`` characters, with a line saying so when text reaches it.
 
     Streamlit stops typing at ``max_chars`` and cuts longer values on the server too. A stored
     text already longer (from an older archive) keeps its length rather than being cut on save.
@@ -56,7 +56,7 @@ def text_field(label: str, value: str = "", *, limit: int, area: bool = False, *
     widget = st.text_area if area else st.text_input
     text = widget(label, value, max_chars=most, **options)
     if len(text) >= most and text != value:
-        st.caption(f"{label}: at most {most} characters; anything longer was cut.")
+        st.caption(f"{label}: {most} characters, the most allowed; anything longer was cut.")
     return text
 
 
