@@ -26,7 +26,7 @@ from fieldtl.qa import (TakeSummary, check_against_lab_rating, check_astm_scope,
                         check_source_spectrum, check_spatial_spread, check_stationarity)
 from fieldtl.rating import Rating, rate_e413, rate_e989, rate_iso717_1, rate_iso717_2
 from fieldtl.survey import Geometry, Survey
-from fieldtl.iso12999 import SITUATIONS, band_table_name, band_uncertainty_db, single_number_uncertainty
+from fieldtl.iso12999 import SITUATIONS, band_uncertainty_db, single_number_uncertainty
 from fieldtl.uncertainty import (CombinedUncertainty, Verdict, band_standard_error_db, decide,
                                  measurement_uncertainty, parse_requirement)
 
@@ -139,7 +139,7 @@ def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
 def uncertainty_note(test_type: str, situation: str, has_band_values: bool) -> str:
     """One sentence naming the ISO 12999-1 tables and the situation behind every u shown."""
     single = "Table 3" if test_type == "airborne" else "Table 5"
-    band = (f"per band from {band_table_name(test_type).split(' ', 1)[1]}" if has_band_values
+    band = (f"per band from {'Table 2' if test_type == 'airborne' else 'Table 4'}" if has_band_values
             else "no per-band values (Table 4 gives none for situation A)")
     return (f"ISO 12999-1:2020, situation {situation} ({SITUATIONS[situation]}): single numbers from {single}, "
             f"{band}")

@@ -141,10 +141,6 @@ def band_uncertainty_db(test_type: str, nominal_hz: Sequence[float], *,
                         f"u {EDITION} {name} ({where})")
 
 
-def band_table_name(test_type: str) -> str:
-    return f"{EDITION} {'Table 2' if test_type == 'airborne' else 'Table 4'}"
-
-
 # --- Annex B: sensitivities ------------------------------------------------------------------------
 
 Unfavourable = Literal["below", "above"]

@@ -106,8 +106,10 @@ def test_requirement_on_a_rating_the_test_cannot_give(tmp_path):
 def test_csv_export_has_one_row_per_band(tmp_path):
     text = assessment_to_csv(_assess(_survey(tmp_path, background_db=40.0)))
     lines = text.strip().splitlines()
-    assert lines[0] == "frequency_hz,L1,L2,B,T,D,Dn,DnT,R_prime,limited"
+    # the ISO 12999-1:2020 band column names its table and situation (Table 2, B: 4.0 dB at 50 Hz, as transcribed)
+    assert lines[0] == ("frequency_hz,L1,L2,B,T,D,Dn,DnT,R_prime,u_iso12999_table2_B_db,u_spread_db,T_basis,limited")
     assert len(lines) == 1 + len(BANDS) and lines[1].startswith("50,95.0,43.7,40.0,0.8,") and lines[1].endswith(",yes")
+    assert lines[1].split(",")[9] == "4.0"
 
 
 def test_octave_free_text_report_mentions_cautions(tmp_path):

@@ -130,7 +130,7 @@ def test_assess_pasted_levels_writes_json_csv_and_plot(tmp_path, capsys):
     assert set(document["bands"]["DnT"]) == {52.0}
     assert document["ratings"]["DnT,w"]["value"] == 52
     assert document["verdict"]["requirement"] == "DnT,w + Ctr >= 45"
-    assert (tmp_path / "r.csv").read_text().startswith("frequency_hz,L1,L2,B,T,D,Dn,DnT,R_prime,limited")
+    assert (tmp_path / "r.csv").read_text().startswith("frequency_hz,L1,L2,B,T,D,Dn,DnT,R_prime,u_iso12999_table2_B_db")
     assert (tmp_path / "r.png").read_bytes()[:4] == b"\x89PNG"
 
 

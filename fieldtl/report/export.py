@@ -68,11 +68,16 @@ def assessment_to_json(assessment: Assessment) -> dict[str, Any]:
             "value": round(verdict.value_db, 1),
             "bound": verdict.bound,
             "expanded_uncertainty_db": round(verdict.expanded_uncertainty_db, 1),
+            "standard_uncertainty_db": round(verdict.standard_uncertainty_db, 2),
+            **_uncertainty_parts(assessment),
             "coverage_factor": verdict.coverage_factor,
             "result": verdict.outcome,
             "rule": verdict.statement,
         },
         "uncertainty_note": assessment.uncertainty_note,
+        "uncertainty_situation": assessment.uncertainty_situation,
+        "band_uncertainty": {name: _rounded(spectrum) for name, spectrum in uncertainty_columns(assessment).items()},
+        "low_frequency_octave_t_s": _low_frequency_t(assessment),
         "construction_check": None if assessment.construction_check is None else {
             key: value for key, value in comparison_to_json(assessment.construction_check).items()
             if key != "warnings"},   # its findings are already under "warnings"
@@ -82,16 +87,72 @@ def assessment_to_json(assessment: Assessment) -> dict[str, Any]:
     }
 
 
+def uncertainty_columns(assessment: Assessment) -> dict[str, BandSpectrum]:
+    """Per-band standard uncertainties: ISO 12999-1 Table 2/4 (the situation used) and this test's spread."""
+    columns = {}
+    if assessment.band_uncertainty_db is not None:
+        columns["u_iso12999"] = assessment.band_uncertainty_db
+    if assessment.band_spread_db is not None:
+        columns["u_spread"] = assessment.band_spread_db
+    return columns
+
+
+def _uncertainty_parts(assessment: Assessment) -> dict[str, Any]:
+    """The parts of the verdict's u, both propagations shown (JSON)."""
+    combined = assessment.uncertainty
+    if combined is None:
+        return {}
+    parts: dict[str, Any] = {"table_uncertainty_db": combined.table.standard_uncertainty_db,
+                             "table": f"{combined.table.table}, row {combined.table.row}" if combined.table.table
+                             else None,
+                             "situation": combined.table.situation}
+    if combined.measurement is not None:
+        parts["spread_uncertainty_db"] = {"correlated": round(combined.measurement.correlated_db, 2),
+                                          "uncorrelated": round(combined.measurement.uncorrelated_db, 2),
+                                          "used": "correlated"}
+    return parts
+
+
+def _low_frequency_t(assessment: Assessment) -> float | None:
+    value = assessment.result.low_frequency_octave_t_s
+    return None if value is None else round(value, 2)
+
+
+def low_frequency_t_note(assessment: Assessment) -> str | None:
+    """The sentence every output carries when the 63 Hz octave T replaced 50-80 Hz (small room)."""
+    value = assessment.result.low_frequency_octave_t_s
+    if value is None:
+        return None
+    return (f"Receiving room under 25 m3: T at 50, 63 and 80 Hz is the 63 Hz octave-band T = {value:.2f} s "
+            "(ISO 16283-1/-2 clause 10.4).")
+
+
 def assessment_to_csv(assessment: Assessment) -> str:
-    """One row per band: frequency, every band quantity, and whether the band is a limit."""
-    columns = band_columns(assessment)
+    """One row per band: frequency, every band quantity, the band uncertainties, whether it is a limit.
+
+    ``u_iso12999_table2_B_db`` (say) is ISO 12999-1:2020 Table 2 (airborne) or Table 4 (impact) for
+    the situation used; ``u_spread_db`` this test's own standard error of DnT / L'nT; ``T_basis`` says where the 63 Hz
+    octave-band T of a small room replaced the one-third-octave T.
+    """
+    columns = band_columns(assessment) | uncertainty_columns(assessment)
+    octave_t = assessment.result.low_frequency_octave_t_s is not None
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(["frequency_hz", *columns, "limited"])
+    writer.writerow(["frequency_hz", *(_csv_header(name, assessment) for name in columns), "T_basis", "limited"])
     rows = zip(assessment.result.nominal_hz, *(_rounded(s) for s in columns.values()), assessment.result.limited)
     for frequency_hz, *values, limited in rows:
-        writer.writerow([json_number(frequency_hz), *("" if v is None else v for v in values), "yes" if limited else ""])
+        basis = "63 Hz octave" if octave_t and frequency_hz in (50.0, 63.0, 80.0) else "third octave"
+        writer.writerow([json_number(frequency_hz), *("" if v is None else v for v in values), basis,
+                         "yes" if limited else ""])
     return out.getvalue()
+
+
+def _csv_header(name: str, assessment: Assessment) -> str:
+    """Column titles; the ISO 12999-1 column names its table and situation, e.g. u_iso12999_table2_B_db."""
+    if name == "u_iso12999":
+        table = "table2" if assessment.test_type == "airborne" else "table4"
+        return f"u_iso12999_{table}_{assessment.uncertainty_situation}_db"
+    return "u_spread_db" if name == "u_spread" else name
 
 
 def assessment_to_text(assessment: Assessment) -> str:
@@ -124,7 +185,21 @@ def assessment_to_text(assessment: Assessment) -> str:
         lines.append(f"  {rating.descriptor:<7} {rating.single_number_db:>3} dB{precise}{bound}"
                      + (f"   ({terms})" if terms else ""))
     if assessment.uncertainty_note:
-        lines.append(f"  Table uncertainty: {assessment.uncertainty_note}")
+        lines.append(f"  Uncertainty: {assessment.uncertainty_note}")
+        rows = {}   # one ISO 12999-1 row serves every rating of a kind: show each term once
+        for quantity, u_db in assessment.table_uncertainty_db.items():
+            if u_db is not None:
+                rows.setdefault(quantity.partition(" + ")[2] or "rating", u_db)
+        if rows:
+            lines.append("  u (dB) of each rating with: " + ", ".join(f"{t} {u:.1f}" for t, u in rows.items()))
+        band = uncertainty_columns(assessment)
+        if band:
+            lines.append("  Per band (dB), " + "; ".join(
+                f"{name}: " + " ".join("-" if v is None else f"{v:.1f}" for v in spectrum.values)
+                for name, spectrum in band.items()))
+    lf_note = low_frequency_t_note(assessment)
+    if lf_note:
+        lines.append(f"  {lf_note}")
     check = assessment.construction_check
     if check is not None:
         measured = "not rated" if check.measured_rating is None else f"R'w {check.measured_rating.single_number_db} dB"

@@ -30,7 +30,7 @@ from fieldtl import __version__
 from fieldtl.assess import Assessment
 from fieldtl.errors import InputError
 from fieldtl.insulation import AirborneResult
-from fieldtl.report.export import band_columns, grouped_findings
+from fieldtl.report.export import band_columns, grouped_findings, low_frequency_t_note, uncertainty_columns
 from fieldtl.report.plot import assessment_figure, construction_figure
 
 _FONT = "DejaVu"
@@ -319,6 +319,9 @@ def _band_table(pdf: FPDF, assessment: Assessment) -> None:
                     "ISO 16283-1/-2). ≥ marks a lower bound (the true insulation is at least the value), ≤ an "
                     "upper bound (the true level is at most the value). – : no value. Levels and D to 0.1 dB, "
                     "T to 0.01 s.", size=7)
+    lf_note = low_frequency_t_note(assessment)
+    if lf_note:
+        _paragraph(pdf, lf_note, size=8, bold=True)
 
 
 def _column_name(name: str) -> str:
@@ -378,7 +381,7 @@ def _single_numbers(pdf: FPDF, assessment: Assessment) -> None:
     terms = list(dict.fromkeys(k for r in assessment.ratings for k in r.adaptation_terms_db))
     fixed_mm = [22.0, 13.0, 13.0, 13.0]   # rating, value, 0.1 dB value, u
     term_mm = min(16.0, (pdf.epw - sum(fixed_mm)) / max(len(terms), 1))
-    headings = ["Rating", "Value\ndB", "0.1 dB\nstep", *(_term_heading(t) for t in terms), "u table\ndB"]
+    headings = ["Rating", "Value\ndB", "0.1 dB\nstep", *(_term_heading(t) for t in terms), "u\ndB"]
     pdf.set_font(_FONT, "", 7.5)
     with pdf.table(col_widths=[*fixed_mm[:3], *([term_mm] * len(terms)), fixed_mm[3]],
                    width=sum(fixed_mm) + term_mm * len(terms), text_align="CENTER", line_height=3.6,
@@ -406,8 +409,17 @@ def _single_numbers(pdf: FPDF, assessment: Assessment) -> None:
                     "bound. Terms are added to the single number (e.g. DnT,w + Ctr). The 0.1 dB step value is "
                     "for uncertainty work (ISO 717-1/-2:2020), not for comparing with requirements.", size=7)
     pdf.ln(1)
-    _paragraph(pdf, f"Source of the table uncertainty u: {assessment.uncertainty_note or 'not stated'}",
-               size=8, bold=True)
+    _paragraph(pdf, f"Uncertainty u of the rating alone: {assessment.uncertainty_note or 'not stated'}. The "
+                    "verdict below uses the row of its own quantity (e.g. + Ctr).", size=8, bold=True)
+    band = uncertainty_columns(assessment)
+    if band:
+        _paragraph(pdf, "Per band, standard uncertainty in dB (" + "; ".join(
+            f"{_BAND_U_NAMES[name]}: " + ", ".join(f"{_number(f)} Hz {v:.1f}" for f, v in zip(s.nominal_hz, s.values)
+                                                  if v is not None)
+            for name, s in band.items()) + ").", size=7)
+
+
+_BAND_U_NAMES = {"u_iso12999": "ISO 12999-1:2020 table value", "u_spread": "this test's own spread"}
 
 
 def _term_heading(term: str) -> str:
