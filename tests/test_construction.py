@@ -1,7 +1,9 @@
 """Panel physics, Sharp's method, the double-leaf model and the construction file reader.
 
-Sources beside each check: facts sheet section 10 (/work/shared/reference/standards.md) with its
-tags, B.H. Sharp 1978 (from memory), textbooks named "from memory", and hand computations.
+Sources beside each check: the field-incidence mass law and the plate critical frequency (textbook
+physics, e.g. Bies & Hansen, "Engineering Noise Control", from memory), B.H. Sharp, Noise Control
+Engineering 11 (1978) (from memory), ISO 12354-1 / EN 12354-1 annexes (from memory), and hand
+computations written out beside the checks.
 """
 
 import math
@@ -26,15 +28,15 @@ def _leaf(*layers):
 # --- mass law -------------------------------------------------------------------------------------------
 
 def test_mass_law_slope_six_db_per_doubling():
-    # +6 dB (20 lg 2 = 6.02) per doubling of surface mass and of frequency (facts sheet 10 [M-high];
-    # common practice).
+    # +6 dB (20 lg 2 = 6.02) per doubling of surface mass and of frequency (mass law,
+    # textbook physics).
     assert mass_law_db(200.0, 500.0) - mass_law_db(100.0, 500.0) == pytest.approx(20 * math.log10(2), abs=1e-9)
     assert mass_law_db(100.0, 1000.0) - mass_law_db(100.0, 500.0) == pytest.approx(20 * math.log10(2), abs=1e-9)
 
 
 def test_sharp_below_half_fc_follows_the_mass_law_slope():
-    # 1 mm steel: fc about 12 kHz (facts sheet 10), so 50-5000 Hz is all below fc/2 and every
-    # doubling of frequency (e.g. 100 -> 200 Hz) adds 6.02 dB (facts sheet 10, common practice).
+    # 1 mm steel: fc·h about 12 Hz·m, so fc about 12 kHz (textbook material data, from memory) and
+    # 50-5000 Hz is all below fc/2: every doubling of frequency (100 -> 200 Hz) adds 20 lg 2 = 6.02 dB.
     leaf = _leaf(("steel", 1.0))
     r = single_leaf_r_db([100.0, 200.0, 400.0], surface_mass_kg_m2=leaf.surface_mass_kg_m2,
                          critical_frequency_hz=leaf.critical_frequency_hz, loss_factor=leaf.loss_factor)
@@ -43,8 +45,8 @@ def test_sharp_below_half_fc_follows_the_mass_law_slope():
 
 def test_field_incidence_mass_law_absolute_value():
     # 460 kg/m2 (200 mm dense concrete) at 500 Hz: 20 lg(230 000) - 47 = 107.23 - 47 = 60.2 dB
-    # (facts sheet 10 [C]; the -47 dB field-incidence constant as in Bies & Hansen, "Engineering
-    # Noise Control", from memory).
+    # (computed; the -47 dB field-incidence constant as in Bies & Hansen, "Engineering Noise
+    # Control", from memory).
     assert mass_law_db(460.0, 500.0) == pytest.approx(60.23, abs=0.01)
 
 
@@ -60,14 +62,15 @@ def test_field_incidence_mass_law_absolute_value():
     ("chipboard", 18.0, 28.0),
 ])
 def test_critical_frequency_against_published_fc_h_products(material, thickness_mm, fc_times_h_hz_m):
-    # fc·h products of the facts sheet 10 table ("typical values, from memory"; material data vary
-    # ±20 %, hence the tolerance).
+    # Typical fc·h products of building materials (handbook tables such as Bies & Hansen's, from
+    # memory; material data vary by about ±20 %, hence the tolerance).
     fc_hz = _leaf((material, thickness_mm)).critical_frequency_hz
     assert fc_hz * thickness_mm / 1000.0 == pytest.approx(fc_times_h_hz_m, rel=0.20)
 
 
 def test_critical_frequency_closed_form():
-    # fc·h = (c²/2π) sqrt(12 ρ (1 - ν²) / E) for a homogeneous plate (facts sheet 10 [C]); c²/2π =
+    # fc·h = (c²/2π) sqrt(12 ρ (1 - ν²) / E) for a homogeneous plate (from B = E h³ / (12 (1 - ν²))
+    # and fc = (c²/2π) sqrt(m''/B), computed); c²/2π =
     # 343²/2π = 18 724.4. Glass: sqrt(12 · 2500 · (1 - 0.22²) / 70e9) = 6.386e-5 -> 11.96 Hz·m.
     expected_fc_h = 343.0 ** 2 / (2 * math.pi) * math.sqrt(12 * 2500 * (1 - 0.22 ** 2) / 70e9)
     assert expected_fc_h == pytest.approx(11.96, abs=0.01)
@@ -85,8 +88,8 @@ def test_bonded_equal_layers_keep_fc_and_add_mass():
 # --- Sharp's single-leaf method ---------------------------------------------------------------------------
 
 def test_sharp_worked_example():
-    # Hand computation, m'' = 20 kg/m², fc = 1000 Hz, η = 0.02, no edge losses (Sharp 1978 as
-    # outlined in facts sheet 10):
+    # Hand computation, m'' = 20 kg/m², fc = 1000 Hz, η = 0.02, no edge losses (Sharp 1978, from
+    # memory):
     #   250 Hz (< fc/2):  20 lg(20·250) - 47                                   = 73.979 - 47 = 26.979
     #   point A, 500 Hz:  20 lg(20·500) - 47                                   = 33.000
     #   point B, 1000 Hz: 20 lg(20·1000) - 47 + 10 lg(2·0.02·1000/(π·1000))    = 39.021 - 18.951 = 20.070

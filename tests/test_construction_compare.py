@@ -1,7 +1,7 @@
 """Construction check findings: each fires on the case it is built for and stays quiet otherwise.
 
 The measured R' spectra are invented from the prediction itself, so the expected finding follows
-from the construction of the case; thresholds are common practice (facts sheet 10, 11) or the
+from the construction of the case; thresholds are common practice (flanking lowers a field R'w by 3-5 dB at good junctions) or the
 module's stated own choices.
 """
 
@@ -37,7 +37,7 @@ def test_clean_case_is_quiet():
 
 
 @pytest.mark.parametrize(("drop_db", "severity", "words"), [
-    (4.0, "info", "typical of flanking"),          # 3-5 dB: good junctions (facts sheet 10 [CP])
+    (4.0, "info", "typical of flanking"),          # 3-5 dB: good junctions (common practice)
     (7.0, "warning", "more than the 3-5 dB"),       # 5-10 dB: poor junctions, linings, leaks [CP]
     (12.0, "warning", "far more than flanking"),    # beyond 10 dB [CP]
 ])
@@ -49,7 +49,7 @@ def test_flanking_gap(drop_db, severity, words):
 
 
 def test_field_above_prediction():
-    # A field value 4 dB above the element's own prediction: an input error (facts sheet 10 [CP]).
+    # A field value 4 dB above the element's own prediction: an input error (common practice).
     comparison = compare_with_measurement(CONCRETE_150, _measured(CONCRETE_150, lambda f: 4.0))
     assert _codes(comparison) == [("field_above_prediction", "warning")]
     assert "Check S, V and T" in comparison.findings[0].action

@@ -1,6 +1,6 @@
 """Decay processing cross-checked against pyrato 1.1 (test-only oracle; pyfar signals as input).
 
-Facts sheet section 14: pyrato's ``schroeder_integration`` is not normalised and its
+Known behaviour of pyrato 1.1 (found by running it): ``schroeder_integration`` is not normalised and its
 ``reverberation_time_linear_regression`` reads the -5/-25 dB limits on the absolute scale of
 the curve it is given, so every pyrato EDC is normalised to 0 dB at its start before the fit.
 All checks run on the same band-filtered signal, so they compare the integration, the noise
@@ -68,7 +68,7 @@ def test_regression_matches_pyrato(parameter):
 
 
 def test_edt_matches_pyrato_within_its_shifted_range():
-    # pyrato fits EDT from -0.1 to -10.1 dB (facts sheet 6.1), we from 0 to -10 dB as ISO 3382-1
+    # pyrato fits EDT from -0.1 to -10.1 dB (pyrato 1.1 parameters.py), we from 0 to -10 dB as ISO 3382-1
     # has it: on a noise decay the two agree within 2 %.
     band = _noise_decay()
     edc = np.cumsum((band ** 2)[::-1])[::-1]
@@ -110,7 +110,7 @@ def test_noise_handled_t20_t30_match_pyrato(noise_handling, pyrato_edc):
 
 
 def test_plain_integration_of_a_noisy_decay_is_biased_as_pyrato_shows():
-    # Facts sheet 14: integrating to the end of a response with a noise floor bends the EDC up.
+    # ISO 3382-2 / Schroeder: integrating to the end of a response with a noise floor bends the EDC up.
     # Our "none" handling equals pyrato's schroeder_integration there (T30 within 0.1 %), and it
     # is longer than the noise-handled value (about 5 % here, 55 dB down, 2.5 s of response).
     band = _noise_decay(noise_below_db=55.0)

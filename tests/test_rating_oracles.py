@@ -1,7 +1,7 @@
 """Agreement with acoustic-toolbox 0.2.2 (`acoustic_toolbox.building`, test-only oracle) on random spectra.
 
-Known faults of the oracle (facts sheet 14, /work/shared/reference/standards.md, checked by
-running it) are handled explicitly and counted, never hidden:
+Known faults of the oracle (found by running acoustic-toolbox 0.2.2 against the rules of ISO 717-1
+and ASTM E413) are handled explicitly and counted, never hidden:
 
 * its Rw loop stops at the first position whose sum of unfavourable deviations is >= 32 dB and
   steps back, so a sum of exactly 32.0 dB (allowed by ISO 717-1 4.4) rates 1 dB low;
@@ -30,7 +30,7 @@ from fieldtl.rating import rate_e413, rate_iso717_1  # noqa: E402
 from fieldtl.rating.iso717 import round_half_up  # noqa: E402
 
 N_SPECTRA = 1000
-E413_CONTOUR = np.array([-16, -13, -10, -7, -4, -1, 0, 1, 2, 3, 4, 4, 4, 4, 4, 4], dtype=float)  # facts sheet 5.2
+E413_CONTOUR = np.array([-16, -13, -10, -7, -4, -1, 0, 1, 2, 3, 4, 4, 4, 4, 4, 4], dtype=float)  # ASTM E413 contour re 500 Hz
 
 
 def insulation_spectra(seed: int, *, grid_db: float) -> np.ndarray:
@@ -73,7 +73,8 @@ def test_rw_and_c_ctr_agree_on_a_tenth_db_grid_away_from_the_boundary():
             excluded += 1
             continue
         assert int(acoustic_toolbox_building.rw(levels_db.copy())) == ours.single_number_db
-        # rw_c / rw_ctr return X_A (= Rw + C unrounded); C = round(X_A - Rw), half up (facts sheet 4.5).
+        # rw_c / rw_ctr return X_A (= Rw + C unrounded); C = round(X_A - Rw), half up (common practice;
+        # the ISO rule for exact halves was not verified).
         c_db = round_half_up(acoustic_toolbox_building.rw_c(levels_db) - ours.single_number_db)
         ctr_db = round_half_up(acoustic_toolbox_building.rw_ctr(levels_db) - ours.single_number_db)
         assert ours.adaptation_terms_db == {"C": c_db, "Ctr": ctr_db}
@@ -83,7 +84,7 @@ def test_rw_and_c_ctr_agree_on_a_tenth_db_grid_away_from_the_boundary():
 def test_stc_agrees_except_where_the_8_db_rule_binds():
     # The oracle raises the contour while the deficiency sum stays <= 32 dB and ignores the 8 dB rule.
     # Where our rating is lower than the oracle's, the oracle's contour must break the 8 dB rule
-    # (E413, facts sheet 5.2) while meeting the sum rule, and ours must be the highest that meets both.
+    # (ASTM E413) while meeting the sum rule, and ours must be the highest that meets both.
     bands_hz = nominal_bands_hz(125, 4000)
     eight_db_cases = 0
     for levels_db in insulation_spectra(413, grid_db=0.5):
