@@ -80,7 +80,7 @@ def measure_take(spec: TakeSpec, *, level_offset_db: float,
     name = recording.name
     stats = SampleStats(sample_rate_hz=recording.sample_rate_hz, source_name=name)
     if spec.role == "decay":
-        samples = np.concatenate(list(stats.watch(iter_blocks(recording))))
+        samples = read_samples(recording, stats=stats)
         analysis = analyse_decay(samples, sample_rate_hz=recording.sample_rate_hz, spec=spec, source_name=name)
         facts = stats.facts()
         take = TakeSummary(label=name, role=spec.role, speaker=spec.speaker, duration_s=facts.duration_s,

@@ -60,7 +60,7 @@ def test_writer_killed_mid_way_leaves_a_sound_store(tmp_path, commits_before_kil
     ids = {t.id for t in takes}
     assert {int(line.split()[1]) for line in committed} <= ids          # nothing reported committed is lost
     with Store.open(database) as store:                  # and the store takes new writes
-        store.prune_audio(stale_incoming_s=0.0)          # a killed upload may have left an unfinished file
+        store.clean_files(stale_s=0.0)          # a killed upload may have left an unfinished file
         assert sorted(p.name for p in store.audio_dir.iterdir()) == sorted({t.file_name for t in takes})
         test_id = takes[0].test_id
         extra = store.add_take(test_id, data=store.take_path(takes[0]).read_bytes(), original_name="after.wav",

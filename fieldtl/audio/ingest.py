@@ -25,6 +25,10 @@ SUPPORTED_SUBTYPES = ("PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE")
 MIN_SAMPLE_RATE_HZ = 44_100
 MAX_SAMPLE_RATE_HZ = 96_000
 DEFAULT_BLOCK_FRAMES = 65_536
+MAX_BLOCK_BYTES = 32 * 1024 * 1024  # one block of every channel as float64, whatever the channel count
+# Decays and calibration tones are read whole into memory; longer recordings are refused
+# (our limit: a decay series or a calibrator check takes well under two minutes on site).
+MAX_WHOLE_READ_S = 120.0
 
 # Clipping: a run of at least this many consecutive samples at or above NEAR_FULL_SCALE
 # (common practice: single full-scale samples can be legitimate peaks, runs are not).
@@ -103,6 +107,7 @@ def iter_blocks(recording: Recording, *, block_frames: int = DEFAULT_BLOCK_FRAME
     Does not resample, remove DC or detect clipping (see SampleStats).
     """
     frames_read = 0
+    block_frames = max(1, min(block_frames, MAX_BLOCK_BYTES // (8 * recording.channels)))
     try:
         with soundfile.SoundFile(recording.path) as handle:
             for block in handle.blocks(blocksize=block_frames, dtype="float64", always_2d=True):
@@ -121,12 +126,27 @@ def iter_blocks(recording: Recording, *, block_frames: int = DEFAULT_BLOCK_FRAME
                          f"only {frames_read} could be read")
 
 
-def read_samples(recording: Recording, *, max_duration_s: float = 600.0) -> np.ndarray:
-    """The whole chosen channel as one float64 array, for short takes (decays, calibrations)."""
-    if recording.duration_s > max_duration_s:
-        raise InputError(f"{recording.name}: {recording.duration_s:.0f} s is longer than the "
-                         f"{max_duration_s:.0f} s allowed for this kind of take")
-    return np.concatenate(list(iter_blocks(recording)))
+def check_whole_read(recording: Recording) -> None:
+    """Refuse a recording too long to be read whole (decays, calibration tones), before reading it."""
+    if recording.duration_s > MAX_WHOLE_READ_S:
+        raise InputError(f"{recording.name}: {recording.duration_s:.1f} s is longer than the "
+                         f"{MAX_WHOLE_READ_S:.0f} s allowed for a decay or calibration recording")
+
+
+def read_samples(recording: Recording, *, stats: SampleStats | None = None) -> np.ndarray:
+    """The whole chosen channel as one float64 array, for short takes (decays, calibrations).
+
+    Checks the length (:func:`check_whole_read`) before allocating; ``stats`` watches the blocks.
+    """
+    check_whole_read(recording)
+    samples = np.empty(recording.frames)
+    position = 0
+    blocks = iter_blocks(recording)
+    for block in blocks if stats is None else stats.watch(blocks):
+        kept = block[: max(recording.frames - position, 0)]
+        samples[position:position + kept.size] = kept
+        position += kept.size
+    return samples
 
 
 def file_sha256(path: str | Path) -> str:

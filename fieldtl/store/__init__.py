@@ -6,10 +6,12 @@ project between machines as one zip archive.
 """
 
 from fieldtl.store.archive import export_project, import_project
-from fieldtl.store.schema import (CALIBRATION_ROLES, MIGRATIONS, SCHEMA_VERSION, Project, TakeRecord, TestRecord,
-                                  TestSetup, take_roles)
-from fieldtl.store.sqlite import ProjectSnapshot, Store, default_data_dir, default_database_path
+from fieldtl.store.schema import (CALIBRATION_ROLES, CONSTRUCTION_SETTING, MIGRATIONS, SCHEMA_VERSION, Project,
+                                  ProjectSnapshot, TakeRecord, TestRecord, TestSetup, take_roles)
+from fieldtl.store.connection import default_data_dir, default_database_path
+from fieldtl.store.sqlite import Store
+from fieldtl.store.survey_view import declared_construction
 
-__all__ = ["CALIBRATION_ROLES", "MIGRATIONS", "SCHEMA_VERSION", "Project", "ProjectSnapshot", "Store", "TakeRecord",
-           "TestRecord", "TestSetup", "default_data_dir", "default_database_path", "export_project",
-           "import_project", "take_roles"]
+__all__ = ["CALIBRATION_ROLES", "CONSTRUCTION_SETTING", "MIGRATIONS", "SCHEMA_VERSION", "Project", "ProjectSnapshot",
+           "Store", "TakeRecord", "TestRecord", "TestSetup", "declared_construction", "default_data_dir",
+           "default_database_path", "export_project", "import_project", "take_roles"]

@@ -25,8 +25,12 @@ from typing import IO, Any
 
 from fieldtl import __version__
 from fieldtl.errors import InputError, StoreError
-from fieldtl.store.schema import Project, TakeRecord, TestRecord, TestSetup, check_take_fields, check_text
-from fieldtl.store.sqlite import ProjectSnapshot, Store, check_audio_file
+from fieldtl.store.files import WHOLE_READ_ROLES, check_audio_file
+from fieldtl.store.schema import (Project, ProjectSnapshot, TakeRecord, TestRecord, TestSetup, check_recording_name,
+                                  check_take_fields, check_text)
+from fieldtl.store.sqlite import Store
+from fieldtl.store.survey_view import check_snapshot
+from fieldtl.validate import echo
 
 ARCHIVE_FORMAT = "fieldtl-project-archive"
 ARCHIVE_VERSION = 1
@@ -74,7 +78,7 @@ def import_project(store: Store, source: str | Path | IO[bytes], *, source_name:
     ``max_member_bytes`` defaults to the store's limit per take. Never overwrites or merges into
     an existing project; audio already in the store (same content) is shared, not copied twice.
     """
-    name = source_name or (Path(source).name if isinstance(source, (str, Path)) else "archive")
+    name = _printable(source_name or (Path(source).name if isinstance(source, (str, Path)) else "archive"))
     limit = store.max_take_bytes if max_member_bytes is None else max_member_bytes
     staged: dict[str, Path] = {}
     try:
@@ -82,6 +86,10 @@ def import_project(store: Store, source: str | Path | IO[bytes], *, source_name:
             members = _check_members(archive, name, max_member_bytes=limit, max_total_bytes=max_total_bytes)
             manifest = _read_json(archive, members[MANIFEST_NAME], name)
             snapshot, files = _parse_manifest(manifest, name)
+            try:
+                check_snapshot(snapshot, {m.removeprefix("audio/"): m for m in files})
+            except InputError as exc:
+                raise InputError(f"{name}: {exc}") from None
             audio_members = {m for m in members if m != MANIFEST_NAME}
             if audio_members != set(files):
                 extra = sorted(audio_members - set(files)) or sorted(set(files) - audio_members)
@@ -206,11 +214,18 @@ def _stream(archive: zipfile.ZipFile, info: zipfile.ZipInfo, name: str, *, limit
 
 
 def _read_json(archive: zipfile.ZipFile, info: zipfile.ZipInfo, name: str) -> Any:
+    """The manifest as strict JSON: UTF-8, no NaN or Infinity, not nested beyond Python's limit."""
     text = b"".join(_stream(archive, info, name, limit=MAX_MANIFEST_BYTES))
     try:
-        return json.loads(text.decode("utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        return json.loads(text.decode("utf-8"), parse_constant=_refuse_constant)
+    except (UnicodeDecodeError, json.JSONDecodeError, ValueError) as exc:
         raise InputError(f"{name}: {MANIFEST_NAME} is not valid JSON ({exc})") from None
+    except RecursionError:
+        raise InputError(f"{name}: {MANIFEST_NAME} is nested too deeply") from None
+
+
+def _refuse_constant(constant: str) -> Any:
+    raise ValueError(f"{constant} is not a JSON number")
 
 
 def _extract_checked(archive: zipfile.ZipFile, info: zipfile.ZipInfo, path: Path, name: str, *, limit: int) -> None:
@@ -230,7 +245,8 @@ def _extract_checked(archive: zipfile.ZipFile, info: zipfile.ZipInfo, path: Path
 def _check_staged_audio(path: Path, takes: list[TakeRecord], name: str, member: str) -> None:
     first = takes[0]
     try:
-        audio = check_audio_file(path, channel=first.channel, shown_name=member)
+        audio = check_audio_file(path, channel=first.channel, shown_name=member,
+                                 read_whole=any(t.role in WHOLE_READ_ROLES for t in takes))
     except InputError as exc:
         raise InputError(f"{name}: {exc}") from None
     for take in takes:
@@ -253,8 +269,8 @@ def _parse_manifest(manifest: Any, name: str) -> tuple[ProjectSnapshot, dict[str
         raise InputError(f"{name}: archive format version {top['format_version']!r}; this fieldtl reads "
                          f"version {ARCHIVE_VERSION}")
     fields = _object(top["project"], _PROJECT_KEYS, name, "project")
-    for key in _PROJECT_KEYS:
-        _text(fields[key], name, f"project {key}", timestamp=key.endswith("_at"))
+    for key in ("created_at", "updated_at"):
+        _timestamp(fields[key], name, f"project {key}")
     project = Project(id=0, **fields)
     if not isinstance(top["tests"], list):
         raise InputError(f"{name}: manifest tests must be a list")
@@ -269,10 +285,8 @@ def _parse_manifest(manifest: Any, name: str) -> tuple[ProjectSnapshot, dict[str
             setup = TestSetup(**{k: test[k] for k in _SETUP_KEYS})
         except (InputError, TypeError) as exc:
             raise InputError(f"{name}: test {number}: {exc}") from None
-        if test["band_levels_csv"] is not None:
-            _text(test["band_levels_csv"], name, f"test {number} band_levels_csv")
         for key in ("created_at", "updated_at"):
-            _text(test[key], name, f"test {number} {key}", timestamp=True)
+            _timestamp(test[key], name, f"test {number} {key}")
         tests.append(TestRecord(test["id"], 0, setup, test["band_levels_csv"], test["created_at"], test["updated_at"]))
         if not isinstance(test["takes"], list):
             raise InputError(f"{name}: test {number} takes must be a list")
@@ -285,9 +299,12 @@ def _parse_manifest(manifest: Any, name: str) -> tuple[ProjectSnapshot, dict[str
 
 def _parse_take(raw: Any, test_id: int, test_type: str, name: str, where: str) -> tuple[TakeRecord, str]:
     entry = _object(raw, _TAKE_KEYS, name, f"{where} take")
-    _text(entry["original_name"], name, f"{where} take name")
-    where = f"{where} take {entry['original_name']!r}"
-    _text(entry["created_at"], name, f"{where} created_at", timestamp=True)
+    try:
+        check_recording_name(entry["original_name"], f"{where} take name")
+    except InputError as exc:
+        raise InputError(f"{name}: {exc}") from None
+    where = f"{where} take {echo(entry['original_name'])}"
+    _timestamp(entry["created_at"], name, f"{where} created_at")
     for key in ("sample_rate_hz", "frames"):
         if isinstance(entry[key], bool) or not isinstance(entry[key], int) or entry[key] <= 0:
             raise InputError(f"{name}: {where}: {key} must be a positive whole number")
@@ -321,12 +338,17 @@ def _object(value: Any, keys: tuple[str, ...], name: str, where: str) -> Mapping
     return value
 
 
-def _text(value: Any, name: str, what: str, *, timestamp: bool = False) -> None:
+def _timestamp(value: Any, name: str, what: str) -> None:
     try:
-        check_text(value, what)
-        if timestamp:
-            datetime.fromisoformat(value)
+        check_text(value, what, max_chars=64)
+        datetime.fromisoformat(value)
     except InputError as exc:
         raise InputError(f"{name}: {exc}") from None
     except ValueError:
-        raise InputError(f"{name}: {what}: {value!r} is not an ISO 8601 timestamp") from None
+        raise InputError(f"{name}: {what}: {echo(value)} is not an ISO 8601 timestamp") from None
+
+
+def _printable(text: str) -> str:
+    """An archive's name for one-line messages: no control characters, at most 80 characters."""
+    cleaned = "".join(c if c.isprintable() else "?" for c in text)
+    return cleaned if len(cleaned) <= 80 else cleaned[:79] + "…"

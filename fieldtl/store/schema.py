@@ -9,22 +9,30 @@ released, is never edited or reordered.
 from __future__ import annotations
 
 import json
-import math
 import sqlite3
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from typing import Any
 
+from fieldtl import validate
 from fieldtl.errors import InputError, StoreError
-from fieldtl.survey import DECAY_METHODS, ROLES_BY_TYPE
+from fieldtl.survey import DECAY_METHODS, ROLES_BY_TYPE, Geometry
 from fieldtl.uncertainty import parse_requirement
+from fieldtl.validate import CALIBRATOR_DB, CHANNEL, LAB_RATING_DB, POSITION, SWEEP_HZ, SWEEP_S, echo
 
 TEST_TYPES: tuple[str, ...] = ("airborne", "impact")
 CALIBRATION_ROLES: tuple[str, ...] = ("calibration", "calibration_after")
 TAKE_SOURCES: tuple[str, ...] = ("upload", "recorder")
 UNCERTAINTY_SITUATIONS: tuple[str, ...] = ("A", "B", "C")       # ISO 12999-1 situations
-CALIBRATOR_RANGE_DB = (60.0, 150.0)                               # same bounds as the survey file
+MAX_PASTED_CHARS = validate.MAX_FILE_BYTES   # pasted band levels, declared build-up: as a survey's files
+MAX_SETTINGS_CHARS = 2 * MAX_PASTED_CHARS    # a test's settings object, as JSON
+RECORDING_NAME_CHARS = 2 * validate.NAME_CHARS   # a recording's file name, as the survey allows it
+CONSTRUCTION_SETTING = "construction_toml"   # settings key: the declared build-up, construction-file TOML
+REPORT_SETTING = "report_details"            # settings key: the report page's details, texts only
+REPORT_DETAIL_CHARS: dict[str, int] = {"organisation": validate.NAME_CHARS, "engineer": validate.NAME_CHARS,
+                                       "measurement_date": validate.NAME_CHARS, "instruments": validate.NOTE_CHARS,
+                                       "positions_description": validate.NOTE_CHARS, "notes": validate.NOTE_CHARS}
 
 
 def take_roles(test_type: str) -> tuple[str, ...]:
@@ -72,27 +80,28 @@ class TestSetup:
     settings: Mapping[str, Any] = field(default_factory=dict, hash=False)   # JSON object: app choices
 
     def __post_init__(self) -> None:
-        where = f"test {self.title!r}" if isinstance(self.title, str) else "test"
-        check_text(self.title, f"{where} title")
-        check_text(self.construction, f"{where} construction")
-        if self.test_type not in TEST_TYPES:
-            raise InputError(f"{where}: type must be airborne or impact, got {self.test_type!r}")
-        check_number(self.receiving_volume_m3, f"{where} receiving_volume_m3", positive=True)
-        for name in ("separating_area_m2", "source_volume_m3", "element_lab_rw_db"):
-            if getattr(self, name) is not None:
-                check_number(getattr(self, name), f"{where} {name}", positive=True)
+        """The same checks as a survey file's [test] table (fieldtl.survey), plus the settings."""
+        where = f"test {echo(self.title)}" if isinstance(self.title, str) else "test"
+        check_text(self.title, f"{where} title", max_chars=validate.NAME_CHARS)
+        check_text(self.construction, f"{where} construction", max_chars=validate.NOTE_CHARS)
+        validate.choice(self.test_type, TEST_TYPES, f"{where} type")
+        try:
+            Geometry(self.receiving_volume_m3, self.separating_area_m2, self.source_volume_m3)
+        except InputError as exc:
+            raise InputError(f"{where} {exc}") from None
+        if self.element_lab_rw_db is not None:
+            validate.number(self.element_lab_rw_db, f"{where} element_lab_rw_db", low=LAB_RATING_DB[0],
+                            high=LAB_RATING_DB[1], unit=" dB")
         if self.requirement is not None:
-            check_text(self.requirement, f"{where} requirement")
+            check_text(self.requirement, f"{where} requirement", max_chars=validate.REQUIREMENT_CHARS)
             try:
                 parse_requirement(self.requirement)
             except InputError as exc:
                 raise InputError(f"{where}: {exc}") from None
-        if self.uncertainty_situation not in UNCERTAINTY_SITUATIONS:
-            raise InputError(f"{where}: uncertainty situation must be A, B or C, got {self.uncertainty_situation!r}")
-        check_number(self.calibrator_db, f"{where} calibrator_db", positive=True)
-        if not CALIBRATOR_RANGE_DB[0] <= self.calibrator_db <= CALIBRATOR_RANGE_DB[1]:
-            raise InputError(f"{where}: calibrator level must be 60-150 dB, got {self.calibrator_db!r}")
-        check_json_object(self.settings, f"{where} settings")
+        validate.choice(self.uncertainty_situation, UNCERTAINTY_SITUATIONS, f"{where} uncertainty situation")
+        validate.number(self.calibrator_db, f"{where} calibrator_db", low=CALIBRATOR_DB[0], high=CALIBRATOR_DB[1],
+                        unit=" dB")
+        check_settings(self.settings, f"{where} settings")
 
 
 @dataclass(frozen=True, slots=True)
@@ -132,48 +141,76 @@ class TakeRecord:
     sweep_length_s: float | None = None
 
 
+@dataclass(frozen=True, slots=True)
+class ProjectSnapshot:
+    """A project with all its tests and takes, read in one transaction (export and copy)."""
+
+    project: Project
+    tests: tuple[TestRecord, ...]
+    takes: tuple[TakeRecord, ...]
+
+
 def check_take_fields(test_type: str, *, role: Any, speaker: Any, method: Any, channel: Any, source: Any,
                       recorder_settings: Any, sweep: Mapping[str, Any], where: str) -> None:
-    """What a take says about itself fits its test: role, position, decay method, channel, origin."""
-    if role not in take_roles(test_type):
-        raise InputError(f"{where}: role {role!r} is not one of {', '.join(take_roles(test_type))} "
-                         f"for {test_type} tests")
-    if isinstance(speaker, bool) or not isinstance(speaker, int) or speaker < 1:
-        raise InputError(f"{where}: position must be a whole number 1 or more, got {speaker!r}")
-    if isinstance(channel, bool) or not isinstance(channel, int) or channel < 0:
-        raise InputError(f"{where}: channel must be a whole number 0 or more (0-based), got {channel!r}")
-    if role == "decay" and method not in DECAY_METHODS:
-        raise InputError(f"{where}: a decay needs a method, one of {', '.join(DECAY_METHODS)}; got {method!r}")
-    if role != "decay" and method is not None:
+    """What a take says about itself fits its test, checked as a survey's [[recording]] is:
+    role, position, decay method, channel (0-based here), sweep, origin."""
+    validate.choice(role, take_roles(test_type), f"{where}: role (for {test_type} tests)")
+    validate.number(speaker, f"{where}: position", low=POSITION[0], high=POSITION[1], integer=True)
+    validate.number(channel, f"{where}: channel (0-based)", low=CHANNEL[0] - 1, high=CHANNEL[1] - 1, integer=True)
+    if role == "decay":
+        validate.choice(method, DECAY_METHODS, f"{where}: decay method")
+    elif method is not None:
         raise InputError(f"{where}: method applies to decay takes only")
-    for name, value in sweep.items():
-        if value is not None:
-            check_number(value, f"{where} {name}", positive=True)
+    for key, (low, high), unit in (("sweep_start_hz", SWEEP_HZ, " Hz"), ("sweep_stop_hz", SWEEP_HZ, " Hz"),
+                                   ("sweep_length_s", SWEEP_S, " s")):
+        if sweep.get(key) is not None:
+            validate.number(sweep[key], f"{where}: {key}", low=low, high=high, unit=unit)
     if method == "sweep" and any(v is None for v in sweep.values()):
         raise InputError(f"{where}: a sweep decay needs sweep_start_hz, sweep_stop_hz and sweep_length_s "
                          "(the sweep that was played)")
     if method != "sweep" and any(v is not None for v in sweep.values()):
         raise InputError(f"{where}: sweep settings apply to sweep decays only")
-    if source not in TAKE_SOURCES:
-        raise InputError(f"{where}: source must be upload or recorder, got {source!r}")
+    validate.choice(source, TAKE_SOURCES, f"{where}: source")
     if recorder_settings is not None:
         check_json_object(recorder_settings, f"{where} recorder settings")
 
 
-def check_text(value: Any, what: str) -> None:
-    if not isinstance(value, str):
-        raise InputError(f"{what}: expected text, got {type(value).__name__}")
+def check_text(value: Any, what: str, *, max_chars: int, empty: bool = True) -> None:
+    """:func:`fieldtl.validate.text`, and storable as UTF-8 (no lone surrogates)."""
+    validate.text(value, what, max_chars=max_chars, empty=empty)
     try:
         value.encode("utf-8")
     except UnicodeEncodeError:
         raise InputError(f"{what}: text holds characters that cannot be stored (lone surrogates)") from None
 
 
-def check_number(value: Any, what: str, *, positive: bool) -> None:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise InputError(f"{what}: expected a finite number, got {value!r}")
-    if positive and value <= 0:
-        raise InputError(f"{what}: must be positive, got {value!r}")
+def check_recording_name(value: Any, what: str = "recording name") -> None:
+    check_text(value, what, max_chars=RECORDING_NAME_CHARS, empty=False)
+
+
+def check_project_texts(*, name: Any, client: Any, address: Any, engineer: Any) -> None:
+    """A project's texts: the name (not empty), client and engineer as names; the address a note."""
+    check_text(name, "project name", max_chars=validate.NAME_CHARS, empty=False)
+    check_text(client, "project client", max_chars=validate.NAME_CHARS)
+    check_text(engineer, "project engineer", max_chars=validate.NAME_CHARS)
+    check_text(address, "project address", max_chars=validate.NOTE_CHARS)
+
+
+def check_settings(value: Any, what: str) -> None:
+    """A test's settings: a JSON object of bounded size whose known keys hold what the app writes."""
+    check_json_object(value, what)
+    if len(json.dumps(dict(value), ensure_ascii=False)) > MAX_SETTINGS_CHARS:
+        raise InputError(f"{what}: more than the {MAX_SETTINGS_CHARS} characters allowed")
+    if CONSTRUCTION_SETTING in value:
+        check_text(value[CONSTRUCTION_SETTING], f"{what} {CONSTRUCTION_SETTING}", max_chars=MAX_PASTED_CHARS)
+    if REPORT_SETTING in value:
+        details = value[REPORT_SETTING]
+        if not isinstance(details, Mapping):
+            raise InputError(f"{what} {REPORT_SETTING} must be a JSON object, got {validate.type_name(details)}")
+        for key, text in details.items():
+            if key not in REPORT_DETAIL_CHARS:
+                raise InputError(f"{what} {REPORT_SETTING}: unknown key {echo(key)}")
+            check_text(text, f"{what} {REPORT_SETTING} {key}", max_chars=REPORT_DETAIL_CHARS[key])
 
 
 def check_json_object(value: Any, what: str) -> None:

@@ -7,8 +7,8 @@ time with nothing half-stored.
 
 from __future__ import annotations
 
-from fieldtl.store.schema import TestRecord, TestSetup
-from fieldtl.store.sqlite import CONSTRUCTION_SETTING, Store
+from fieldtl.store.schema import CONSTRUCTION_SETTING, TestRecord, TestSetup
+from fieldtl.store.sqlite import Store
 from fieldtl.survey import Survey
 
 

@@ -6,7 +6,7 @@ import streamlit as st
 from fieldtl.construction.predict import predict
 from fieldtl.errors import FieldTLError
 from fieldtl.report.plot import construction_figure
-from fieldtl.store.sqlite import declared_construction
+from fieldtl.store import declared_construction
 from fieldtl.ui import cached, common, gate
 
 gate.require_access()

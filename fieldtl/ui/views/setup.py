@@ -6,8 +6,7 @@ import streamlit as st
 
 from fieldtl.construction import MATERIALS
 from fieldtl.errors import FieldTLError
-from fieldtl.store import TestSetup
-from fieldtl.store.sqlite import CONSTRUCTION_SETTING, declared_construction
+from fieldtl.store import CONSTRUCTION_SETTING, TestSetup, declared_construction
 from fieldtl.ui import cached, common, gate, state
 from fieldtl.uncertainty import EXAMPLE_REQUIREMENTS, SITUATIONS
 
