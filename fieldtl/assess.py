@@ -22,7 +22,7 @@ from fieldtl.insulation import (AirborneMeasurement, AirborneResult, ImpactMeasu
                                 impact_insulation)
 from fieldtl.insulation.astm_field import apparent_transmission_loss_db, normalized_impact_level_db
 from fieldtl.qa import (TakeSummary, check_against_lab_rating, check_astm_scope, check_background,
-                        check_calibration, check_decays, check_durations, check_geometry, check_positions,
+                        check_calibration, check_corners, check_decays, check_durations, check_geometry, check_positions,
                         check_source_spectrum, check_spatial_spread, check_stationarity)
 from fieldtl.rating import Rating, rate_e413, rate_e989, rate_iso717_1, rate_iso717_2
 from fieldtl.survey import Geometry, Survey
@@ -94,6 +94,8 @@ def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
                             source_volume_m3=geometry.source_volume_m3,
                             separating_area_m2=geometry.separating_area_m2)
     found += check_positions(takes, test_type=survey.test_type)
+    found += check_corners(takes, test_type=survey.test_type, receiving_volume_m3=geometry.receiving_volume_m3,
+                           source_volume_m3=geometry.source_volume_m3)
     found += check_durations(takes)
     found += check_stationarity(takes)
     found += check_spatial_spread(takes)

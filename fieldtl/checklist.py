@@ -2,7 +2,9 @@
 
 A pure function of the test's type, geometry and the takes so far, for the capture page and the
 report. The targets are those of :mod:`fieldtl.qa` (ISO 16283-1/-2, from memory); a checklist
-item is advice, never a gate: results are computed with whatever is there.
+item is advice, never a gate: results are computed with whatever is there. Low-frequency corners
+follow ISO 16283-1/-2 as transcribed (four per position, two at floor and two at ceiling level,
+15 s each, background in each corner).
 """
 
 from __future__ import annotations
@@ -14,12 +16,11 @@ import numpy as np
 
 from fieldtl.bands import BandSpectrum
 from fieldtl.findings import Finding
-from fieldtl.insulation.common import LOW_FREQUENCY_VOLUME_LIMIT_M3
-from fieldtl.qa import (MIN_DECAYS, MIN_LOUDSPEAKER_POSITIONS, MIN_MICROPHONE_POSITIONS, MIN_TAPPING_POSITIONS,
-                        TakeSummary)
+from fieldtl.insulation.common import low_frequency_applies
+from fieldtl.qa import (MIN_CORNER_S, MIN_CORNERS, MIN_DECAYS, MIN_LOUDSPEAKER_POSITIONS, MIN_MICROPHONE_POSITIONS,
+                        MIN_TAPPING_POSITIONS, TakeSummary)
 from fieldtl.units import energetic_mean_db, energetic_sum_db
 
-CORNERS_PER_POSITION = 4          # low-frequency procedure, per source position and small room (from memory)
 MIN_BACKGROUND_TAKES = 1
 
 
@@ -68,10 +69,12 @@ def checklist(*, test_type: str, receiving_volume_m3: float, source_volume_m3: f
         small_rooms = [("source_corner", source_volume_m3)] if test_type == "airborne" else []
         small_rooms.append(("receiving_corner", receiving_volume_m3))
         for role, volume in small_rooms:
-            if volume is not None and volume < LOW_FREQUENCY_VOLUME_LIMIT_M3:
+            if volume is not None and low_frequency_applies(volume):
                 room = "source" if role == "source_corner" else "receiving"
-                items.append(ChecklistItem(f"{what} {speaker}: {room}-room corners (room under 25 m3)",
-                                           count(role, speaker), CORNERS_PER_POSITION, role, speaker))
+                background = ", background in each" if room == "receiving" else ""
+                items.append(ChecklistItem(
+                    f"{what} {speaker}: {room}-room corners (room under 25 m3: 2 at floor, 2 at ceiling level, "
+                    f"{MIN_CORNER_S:.0f} s each{background})", count(role, speaker), MIN_CORNERS, role, speaker))
     items.append(ChecklistItem("Background noise in the receiving room", count("background"),
                                MIN_BACKGROUND_TAKES, "background"))
     items.append(ChecklistItem("Reverberation decays in the receiving room", count("decay"), MIN_DECAYS, "decay"))

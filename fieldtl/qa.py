@@ -17,13 +17,15 @@ import numpy as np
 
 from fieldtl.bands import BandSpectrum
 from fieldtl.findings import Finding
+from fieldtl.insulation.common import low_frequency_applies
 
 MIN_LOUDSPEAKER_POSITIONS = 2        # ISO 16283-1, single loudspeaker moved (from memory, high confidence)
 MIN_MICROPHONE_POSITIONS = 5         # ISO 16283-1/-2, fixed positions per room per source position (from memory)
 MIN_TAPPING_POSITIONS = 4            # ISO 16283-2 (from memory)
 MIN_DECAYS = 6                       # ISO 16283-1/-2 reverberation time (from memory)
 MIN_FIXED_POSITION_S = 6.0           # ISO 16283-1/-2 averaging time, bands >= 100 Hz (from memory)
-MIN_CORNER_S = 15.0                  # low-frequency procedure corner positions (from memory)
+MIN_CORNER_S = 15.0                  # low-frequency procedure, per corner (ISO 16283-1/-2, as transcribed)
+MIN_CORNERS = 4                      # per source position and small room: 2 at floor, 2 at ceiling level (same)
 MAX_ADJACENT_SOURCE_STEP_DB = 8.0    # ISO 16283-1 source-room spectrum rule
 STATIONARITY_STD_DB = 2.0            # 1 s levels of a steady source should scatter less (common practice)
 BACKGROUND_EVENT_DB = 10.0           # a 1 s background level this far above the median is an event (common practice)
@@ -84,8 +86,38 @@ def check_positions(takes: Sequence[TakeSummary], *, test_type: str) -> tuple[Fi
     return tuple(found)
 
 
+def check_corners(takes: Sequence[TakeSummary], *, test_type: str, receiving_volume_m3: float,
+                  source_volume_m3: float | None) -> tuple[Finding, ...]:
+    """At least four corners per source position in every room under 25 m3 (rounded).
+
+    ISO 16283-1/-2 low-frequency procedure (as transcribed): four corners, two at floor and two at
+    ceiling level, 0.3-0.4 m from the three surfaces, 15 s each, background in each corner. Which
+    corner is at which height is not recorded, so only the count is checked here.
+    """
+    level_role = "impact" if test_type == "impact" else "receiving"
+    speakers = sorted({t.speaker for t in takes if t.role == level_role}) or [1]
+    rooms = [("receiving_corner", "receiving", receiving_volume_m3)]
+    if test_type == "airborne":
+        rooms.append(("source_corner", "source", source_volume_m3 or receiving_volume_m3))
+    counts = Counter((t.role, t.speaker) for t in takes if t.role.endswith("corner"))
+    found = []
+    for role, room, volume in rooms:
+        if not low_frequency_applies(volume):
+            continue
+        for speaker in speakers:
+            n = counts[(role, speaker)]
+            if 0 < n < MIN_CORNERS:   # none at all: the insulation layer already reports the missing procedure
+                found.append(Finding("too_few_corners", "warning",
+                                     f"{room} room, position {speaker}: {n} corner(s) measured; the low-frequency "
+                                     f"procedure needs {MIN_CORNERS} (two at floor, two at ceiling level)",
+                                     f"Record {MIN_CORNERS - n} more corner(s), 0.3-0.4 m from the three surfaces, "
+                                     f"{MIN_CORNER_S:.0f} s each, with the background in each corner.",
+                                     clause="ISO 16283-1/-2 low-frequency procedure"))
+    return tuple(found)
+
+
 def check_durations(takes: Sequence[TakeSummary]) -> tuple[Finding, ...]:
-    """Averaging times: 6 s per fixed position, 15 s per corner position (ISO 16283-1/-2, from memory)."""
+    """Averaging times: 6 s per fixed position (from memory), 15 s per corner (ISO 16283-1/-2, as transcribed)."""
     found = []
     for take in takes:
         if take.duration_s is None or take.role == "decay":
@@ -95,7 +127,7 @@ def check_durations(takes: Sequence[TakeSummary]) -> tuple[Finding, ...]:
             found.append(Finding("recording_too_short", "warning",
                                  f"{take.label}: {take.duration_s:.1f} s recorded, {minimum:.0f} s needed",
                                  f"Record this position again for at least {minimum:.0f} s.",
-                                 clause="ISO 16283-1/-2 averaging time (from memory)"))
+                                 clause="ISO 16283-1/-2 averaging time"))
     return tuple(found)
 
 

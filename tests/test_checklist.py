@@ -1,5 +1,7 @@
 """The on-site checklist: counts per role and position against the ISO 16283 targets (from memory)."""
 
+import pytest
+
 from fieldtl.checklist import TakeCount, checklist
 
 
@@ -27,10 +29,13 @@ def test_counts_advance_per_position():
 
 
 def test_extra_positions_appear_and_small_rooms_ask_for_corners():
-    # Low-frequency procedure in rooms under 25 m3: 4 corner positions per source position (from memory).
+    # Low-frequency procedure in rooms under 25 m3 (rounded): 4 corners per source position, two at floor
+    # and two at ceiling level, 15 s each (ISO 16283-1/-2, as transcribed; verify against a licensed copy).
     items = _items(receiving_volume_m3=20.0, takes=[TakeCount("source", 3)])
     assert "Loudspeaker position 3: source-room microphone positions" in items
-    assert items["Loudspeaker position 1: receiving-room corners (room under 25 m3)"].need == 4
+    label = ("Loudspeaker position 1: receiving-room corners (room under 25 m3: 2 at floor, 2 at ceiling level, "
+             "15 s each, background in each)")
+    assert items[label].need == 4
     assert not any("source-room corners" in label for label in items)
 
 
@@ -57,3 +62,10 @@ def test_take_description_reads_level_margin_and_problems():
     assert text == "62.0 dB (100-3150 Hz); lowest margin over background 6.0 dB at 3150 Hz; 6.0 s; check: clipping"
     decay = TakeSummary("ir.wav", "decay", 1, reverberation_time_s=BandSpectrum(bands, (0.5,) * 15 + (None,), "s", "T"))
     assert describe_take(decay, (), calibrated=False) == "T20 in 15 of 16 bands 100-3150 Hz, median 0.50 s"
+
+
+@pytest.mark.parametrize(("volume_m3", "asks"), [(24.4, True), (24.5, False)])
+def test_corner_items_follow_the_rounded_volume(volume_m3, asks):
+    # ISO 16283-1/-2 (as transcribed): volume rounded to whole m3 below 25 -> 24.4 asks, 24.5 does not
+    items = _items(receiving_volume_m3=volume_m3)
+    assert any("receiving-room corners" in label for label in items) is asks

@@ -159,3 +159,39 @@ def impact_survey(folder: Path, *, impact_db, background_db, reverberation_s, re
     writer.decays(reverberation_s)
     return writer.finish(f'title = "Invented impact end-to-end check"\ntype = "impact"\n'
                          f'receiving_volume_m3 = {receiving_volume_m3}\nrequirement = "{requirement}"\n')
+
+
+SMALL_ROOM_T_63_S = 0.9   # the invented small room's T from 50 to 125 Hz (so in its 63 Hz octave and the skirts)
+
+
+def small_room_survey(folder: Path, *, receiving_volume_m3: float = 20.0) -> Path:
+    """An airborne test into an invented small receiving room (under 25 m3) with corner takes.
+
+    T is SMALL_ROOM_T_63_S at 50-125 Hz (so the 63 Hz octave filter's skirts see the same decay) and
+    0.5 s above; four receiving-room corners per loudspeaker position read 4 dB
+    above the room. No corner background (the survey has no role for it).
+    """
+    from fieldtl.bands import BandSpectrum
+
+    writer = SurveyWriter(folder)
+    bands = WALL_BANDS
+    t_s = BandSpectrum(bands, tuple(SMALL_ROOM_T_63_S if f <= 125 else 0.5 for f in bands), "s", "T")
+    absorption_m2 = 0.16 * receiving_volume_m3 / t_s.as_array()
+    d_db = WALL_R_TRUE.as_array() - 10 * np.log10(WALL_S_M2 / absorption_m2)
+    l2 = BandSpectrum.from_array(bands, WALL_L1_TRUE.as_array() - d_db, "dB", "L2")
+    corner = BandSpectrum.from_array(bands, l2.as_array() + 4.0, "dB", "L2c")
+    for speaker in (1, 2):
+        for mic in range(2):
+            seed = 100 * speaker + mic
+            writer.take(f"src_{speaker}_{mic}.wav", writer.noise(WALL_L1_TRUE, seed=seed), "source", speaker)
+            receiving = writer.noise(l2, seed=seed) + writer.noise(WALL_B_TRUE, seed=seed + 50)
+            writer.take(f"rec_{speaker}_{mic}.wav", receiving, "receiving", speaker)
+        for i in range(4):
+            samples = writer.noise(corner, seed=300 + 10 * speaker + i) + writer.noise(WALL_B_TRUE, seed=400 + i)
+            writer.take(f"corner_{speaker}_{i}.wav", samples, "receiving_corner", speaker)
+    for i in range(2):
+        writer.take(f"bg_{i}.wav", writer.noise(WALL_B_TRUE, seed=900 + i), "background")
+    writer.decays(t_s)
+    return writer.finish(f'title = "Invented small-room check"\ntype = "airborne"\nseparating_area_m2 = {WALL_S_M2}\n'
+                         f'receiving_volume_m3 = {receiving_volume_m3}\nsource_volume_m3 = {WALL_V1_M3}\n'
+                         'requirement = "DnT,w + Ctr,50-3150 >= 40"\n')
