@@ -16,7 +16,7 @@ with common.fenced():
         "levels, reverberation times, D, Dn, DnT and R' (ISO 16283-1) or L'n and L'nT (ISO 16283-2), ratings "
         "(ISO 717-1/-2, ASTM E336/E413, E1007/E989), an uncertainty-aware verdict against your requirement, "
         "quality findings and a report.")
-    st.write("The uncertainty values of ISO 12999-1 are **placeholders** in this version: set them from your "
-             "copy of the standard before relying on a guarded verdict.")
+    st.write("Uncertainties follow ISO 12999-1:2020 (Tables 2 to 5) for the situation chosen in the test set-up; "
+             "a field compliance test normally uses situation B.")
     st.write("The demo project is **invented**: a fictional building with synthesised recordings.")
     st.caption(f"fieldtl {__version__}")
