@@ -14,9 +14,9 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from fieldtl.analysis.decay import (average_reverberation, fit_decay_line, impulse_start_index,
-                                    reverberation_from_impulse_response, reverberation_from_sweep,
-                                    schroeder_decay_db)
+from fieldtl.analysis.decay import (average_reverberation, reverberation_from_impulse_response,
+                                    reverberation_from_sweep)
+from fieldtl.analysis.edc import fit_decay_line, impulse_start_index, schroeder_decay_db
 from fieldtl.analysis.filterbank import band_sos
 from fieldtl.analysis.interrupted import find_interruptions, reverberation_from_interrupted_noise
 from fieldtl.audio.signals import SweepSpec, exponential_sweep, pink_noise, white_noise

@@ -19,8 +19,9 @@ from conftest import import_reference  # noqa: E402  (skips locally, fails under
 pf = import_reference("pyfar")
 ra = import_reference("pyrato")
 
-from fieldtl.analysis.decay import (EVALUATION_RANGES_DB, evaluate_curve, fit_decay_line,  # noqa: E402
-                                    integrated_decay_curve, schroeder_decay_db)
+from fieldtl.analysis.decay import evaluate_curve  # noqa: E402
+from fieldtl.analysis.edc import (EVALUATION_RANGES_DB, fit_decay_line, integrated_decay_curve,  # noqa: E402
+                                  schroeder_decay_db)
 from fieldtl.analysis.filterbank import band_sos  # noqa: E402
 from fieldtl.analysis.lundeby import estimate_noise_floor, smoothing_window_s  # noqa: E402
 

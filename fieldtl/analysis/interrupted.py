@@ -17,8 +17,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import signal
 
-from fieldtl.analysis.decay import (BT_MIN_FORWARD, CLAUSE_RANGE, CURVE_STEP_S, BandDecay, DecayAnalysis,
-                                    DecayCurve, analysis_bands, band_without_decay, evaluate_curve)
+from fieldtl.analysis.decay import (BT_MIN_FORWARD, CLAUSE_RANGE, BandDecay, DecayAnalysis, analysis_bands,
+                                    band_without_decay, evaluate_curve)
+from fieldtl.analysis.edc import CURVE_STEP_S, DecayCurve
 from fieldtl.analysis.filterbank import band_sos
 from fieldtl.analysis.lundeby import smoothing_window_s
 from fieldtl.audio.signals import checked_audio
