@@ -176,13 +176,6 @@ class Store:
             found = db.execute("SELECT * FROM tests WHERE project_id = ? ORDER BY id", (project_id,)).fetchall()
         return tuple(rows.row_to_test(r) for r in found)
 
-    def delete_test(self, test_id: int) -> None:
-        """Delete the test and its takes; audio files stay until :meth:`clean_files`."""
-        with self._write() as db:
-            test = self._test(db, test_id)
-            db.execute("DELETE FROM tests WHERE id = ?", (test_id,))
-            rows.touch_project(db, test.project_id, utc_now())
-
     def set_band_levels(self, test_id: int, csv_text: str | None) -> TestRecord:
         """Store pasted sound-level-meter band levels (checked as survey.read_band_levels_csv does), or clear them."""
         now = utc_now()
