@@ -122,3 +122,74 @@ def test_non_finite_float_samples_are_rejected(tmp_path, bad):
     path = make_data.write(tmp_path / "float.wav", samples, subtype="FLOAT")
     message = _one_line_error(lambda: list(iter_blocks(open_recording(path), block_frames=4096)))
     assert message == "float.wav: contains NaN or infinite samples (first at 0.625 s)"
+
+
+def _facts(path):
+    recording = open_recording(path)
+    stats = SampleStats(sample_rate_hz=recording.sample_rate_hz, source_name=recording.name)
+    read_samples(recording, stats=stats)
+    return stats.facts()
+
+
+@pytest.mark.parametrize("subtype", ["FLOAT", "DOUBLE"])
+def test_float_samples_beyond_full_scale_are_a_finding_at_the_edge(tmp_path, subtype):
+    # Full scale is 1.0 (the value fixed-point formats map their largest code to); a float file
+    # may hold more. Exactly 1.0 is not beyond it; the next float32 above 1.0 (1 + 2**-23,
+    # IEEE 754 binary32) is.
+    samples = 0.1 * make_data.sine(100, amplitude=1.0, duration_s=0.2)
+    samples[100] = 1.0
+    at = _facts(make_data.write(tmp_path / "at.wav", samples, subtype=subtype))
+    assert at.over_full_scale_samples == 0 and "beyond_full_scale" not in [f.code for f in at.findings]
+    samples[200] = samples[300] = 1.0 + 2.0 ** -23
+    beyond = _facts(make_data.write(tmp_path / "beyond.wav", samples, subtype=subtype))
+    finding = next(f for f in beyond.findings if f.code == "beyond_full_scale")
+    assert beyond.over_full_scale_samples == 2 and finding.severity == "warning"
+    assert finding.message.startswith("beyond.wav: 2 samples beyond full scale (peak +0.0 dBFS)")
+
+
+def test_denormal_samples_are_a_finding_at_the_edge(tmp_path):
+    # IEEE 754 binary32: the smallest normal value is 2**-126 = 1.1754944e-38; 2**-127 is a denormal.
+    samples = 0.1 * make_data.sine(100, amplitude=1.0, duration_s=0.2)
+    samples[1000] = 2.0 ** -126
+    normal = _facts(make_data.write(tmp_path / "normal.wav", samples, subtype="FLOAT"))
+    assert normal.denormal_samples == 0 and "denormal_samples" not in [f.code for f in normal.findings]
+    samples[1000] = 2.0 ** -127
+    samples[2000] = -(2.0 ** -149)                       # the smallest binary32 denormal
+    denormal = _facts(make_data.write(tmp_path / "denormal.wav", samples, subtype="FLOAT"))
+    assert denormal.denormal_samples == 2
+    assert [f.severity for f in denormal.findings if f.code == "denormal_samples"] == ["warning"]
+
+
+def test_pcm_files_never_show_full_scale_or_denormal_findings(tmp_path):
+    # The largest 16-bit code is 32767/32768 of full scale and the smallest non-zero 2**-15: both
+    # inside (2**-126, 1] (two's complement PCM, analytic).
+    samples = np.array([1.0, -1.0, 2.0 ** -15, 0.0] * 1000)
+    facts = _facts(make_data.write(tmp_path / "pcm.wav", samples, subtype="PCM_16"))
+    assert facts.over_full_scale_samples == 0 and facts.denormal_samples == 0
+
+
+def test_whole_reads_are_limited_before_reading(tmp_path):
+    # Decays and calibration tones are read whole: one frame beyond the limit is refused, from the
+    # header, with one line naming the file and the limit.
+    from fieldtl.audio.ingest import MAX_WHOLE_READ_S, check_whole_read
+
+    rate = 48_000
+    inside = make_data.write(tmp_path / "inside.wav", np.zeros(int(MAX_WHOLE_READ_S * rate)), subtype="PCM_16")
+    check_whole_read(open_recording(inside))                      # exactly the limit: accepted
+    outside = make_data.write(tmp_path / "long decay.wav", np.zeros(int(MAX_WHOLE_READ_S * rate) + 1),
+                              subtype="PCM_16")
+    message = _one_line_error(read_samples, open_recording(outside))
+    assert message == "long decay.wav: 120.0 s is longer than the 120 s allowed for a decay or calibration recording"
+
+
+def test_blocks_of_many_channels_stay_within_the_block_byte_limit(tmp_path, monkeypatch):
+    import fieldtl.audio.ingest as ingest
+
+    samples = np.zeros((10_000, 8))
+    samples[:, 5] = make_data.sine(100, amplitude=0.3, duration_s=10_000 / 48_000)
+    path = tmp_path / "eight.wav"
+    soundfile.write(str(path), samples, 48_000, subtype="FLOAT")
+    monkeypatch.setattr(ingest, "MAX_BLOCK_BYTES", 8 * 8 * 1000)     # 1000 frames of 8 float64 channels
+    blocks = list(iter_blocks(open_recording(path, channel=5)))
+    assert max(b.size for b in blocks) == 1000 and sum(b.size for b in blocks) == 10_000
+    np.testing.assert_array_equal(np.concatenate(blocks), samples[:, 5].astype(np.float32))

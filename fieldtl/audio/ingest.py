@@ -1,9 +1,11 @@
 """Reading recordings: WAV and FLAC through soundfile, block by block, with one gatekeeper.
 
 Every sample the analysis sees passes through :func:`iter_blocks`, which rejects non-finite
-values and truncated files with an :class:`~fieldtl.errors.InputError` naming the file.
-:class:`SampleStats` watches the same blocks to report peak, clipping, DC offset and digital
-silence without reading the file a second time.
+values and truncated files with an :class:`~fieldtl.errors.InputError` naming the file, in
+blocks of at most MAX_BLOCK_BYTES whatever the channel count. Takes read whole (decays,
+calibration tones) are limited to MAX_WHOLE_READ_S before reading (:func:`check_whole_read`).
+:class:`SampleStats` watches the same blocks to report peak, clipping, float samples beyond full
+scale, denormals, DC offset and digital silence without reading the file a second time.
 """
 
 from __future__ import annotations
@@ -36,6 +38,10 @@ CLIP_RUN_SAMPLES = 3
 NEAR_FULL_SCALE = 0.999
 DC_OFFSET_LIMIT = 0.01        # |mean| above 1 % of full scale (-40 dBFS) is flagged (common practice)
 DROPOUT_MIN_S = 0.010         # exact-zero runs of 10 ms or more inside a take suggest dropouts (common practice)
+FULL_SCALE = 1.0              # float files may hold larger values; fixed-point formats cannot
+# Smallest normal 32-bit float, 2**-126 (IEEE 754 binary32): a non-zero sample below it is a
+# denormal in a 32-bit float file (and in any file it is 750 dB below full scale: not a signal).
+DENORMAL_BELOW = float(np.finfo(np.float32).tiny)
 
 
 @dataclass(frozen=True, slots=True)
@@ -167,6 +173,8 @@ class SignalFacts:
     peak_dbfs: float
     clipped_samples: int
     clip_runs: int
+    over_full_scale_samples: int    # |x| > 1: float files only
+    denormal_samples: int           # 0 < |x| < 2**-126
     dc_offset: float
     zero_fraction: float
     longest_zero_run_s: float
@@ -219,6 +227,8 @@ class SampleStats:
         self._peak = 0.0
         self._sum = 0.0
         self._zeros = 0
+        self._over = 0
+        self._denormal = 0
         self._clip_runs = _RunCounter(min_length=CLIP_RUN_SAMPLES)
         self._zero_runs = _RunCounter(min_length=1)
 
@@ -235,6 +245,8 @@ class SampleStats:
         if block.size:
             self._peak = max(self._peak, float(magnitude.max()))
         self._sum += float(block.sum())
+        self._over += int(np.count_nonzero(magnitude > FULL_SCALE))
+        self._denormal += int(np.count_nonzero((magnitude > 0.0) & (magnitude < DENORMAL_BELOW)))
         self._clip_runs.update(magnitude >= NEAR_FULL_SCALE)
         zero = block == 0.0
         self._zeros += int(zero.sum())
@@ -252,6 +264,8 @@ class SampleStats:
             peak_dbfs=20 * math.log10(self._peak) if self._peak > 0 else -math.inf,
             clipped_samples=self._clip_runs.samples,
             clip_runs=self._clip_runs.runs,
+            over_full_scale_samples=self._over,
+            denormal_samples=self._denormal,
             dc_offset=dc,
             zero_fraction=self._zeros / frames,
             longest_zero_run_s=self._zero_runs.longest / self._sample_rate_hz,
@@ -259,7 +273,8 @@ class SampleStats:
         return SignalFacts(**facts, findings=self._findings(**facts))
 
     def _findings(self, *, peak: float, clip_runs: int, clipped_samples: int, dc_offset: float,
-                  zero_fraction: float, longest_zero_run_s: float, **_: float) -> tuple[Finding, ...]:
+                  zero_fraction: float, longest_zero_run_s: float, over_full_scale_samples: int,
+                  denormal_samples: int, **_: float) -> tuple[Finding, ...]:
         name = self._source_name
         found: list[Finding] = []
         if peak == 0.0:
@@ -275,6 +290,19 @@ class SampleStats:
             found.append(Finding("clipping", "error",
                                  f"{name}: {clip_runs} clipped run(s), {clipped_samples} samples at full scale",
                                  "Lower the input gain (or the source level) and record again.",
+                                 clause="common practice"))
+        if over_full_scale_samples:
+            found.append(Finding("beyond_full_scale", "warning",
+                                 f"{name}: {over_full_scale_samples} samples beyond full scale "
+                                 f"(peak {20 * math.log10(peak):+.1f} dBFS)",
+                                 "A float file kept them, but the recorder's converter or any fixed-point copy "
+                                 "clips there; lower the input gain and record again.",
+                                 clause="common practice"))
+        if denormal_samples:
+            found.append(Finding("denormal_samples", "warning",
+                                 f"{name}: {denormal_samples} samples are tiny non-zero values (denormals, "
+                                 "below 1.2e-38 of full scale), which no microphone produces",
+                                 "Check the software that wrote the file; record again or export without it.",
                                  clause="common practice"))
         if abs(dc_offset) > DC_OFFSET_LIMIT:
             found.append(Finding("dc_offset", "warning",
