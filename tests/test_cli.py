@@ -135,8 +135,8 @@ def test_assess_pasted_levels_writes_json_csv_and_plot(tmp_path, capsys):
 
 
 @pytest.mark.parametrize("edit, needle", [
-    (lambda t: t.replace("receiving_volume_m3 = 36.0", "receiving_volume_m3 = 0"), "receiving_volume_m3 must be a positive"),
-    (lambda t: t.replace("separating_area_m2 = 12.0", "separating_area_m2 = -12.0"), "separating_area_m2 must be a positive"),
+    (lambda t: t.replace("receiving_volume_m3 = 36.0", "receiving_volume_m3 = 0"), "receiving_volume_m3 must be a number from 1 to 100000 m3, got 0"),
+    (lambda t: t.replace("separating_area_m2 = 12.0", "separating_area_m2 = -12.0"), "separating_area_m2 must be a number from 0.1 to 10000 m2"),
     (lambda t: t + "loudness = 3\n", "unknown key 'loudness' in [test]"),
     (lambda t: t.replace('band_levels = "slm.csv"', 'band_levels = "nope.csv"'), "band_levels file 'nope.csv' not found"),
     (lambda t: t.replace('band_levels = "slm.csv"', ""), "no recording with role 'source'"),
