@@ -1,38 +1,47 @@
 """The app in a real browser: Debian's chromium through Playwright at a phone's 390 x 844 viewport.
 
 Walks the invented demo to its verdict, records a take through the recorder with Chromium's fake
-microphone, reloads the page and finds the take still there. In CI a missing browser fails the
+microphone, reloads the page and finds the take still there. With an access code set, every page
+address opened directly shows only the gate. In CI a missing browser fails the
 test (see the chromium_path fixture in conftest.py); no browser is ever downloaded.
 """
 
 import os
 import re
-import subprocess
 import sys
 from pathlib import Path
 
 import make_data
-from live_server import free_port, wait_until_healthy
+from live_server import free_port, start_server, stop_server, wait_until_healthy
 import pytest
 
 REPO = Path(__file__).resolve().parents[1]
 PHONE = {"width": 390, "height": 844}
+CODE = "k7m2-q9tx-4hvw"
+PAGE_PATHS = ("", "projects", "setup", "takes", "results", "construction", "report", "signals", "safety")
 
 
-@pytest.fixture
-def app_url(tmp_path):
+def _serve(tmp_path, *extra):
     port = free_port()
     env = {k: v for k, v in os.environ.items() if k not in ("FIELDTL_ACCESS_CODE", "FIELDTL_NO_DEMO")}
-    server = subprocess.Popen([sys.executable, "-m", "fieldtl.cli", "app", "--port", str(port), "--data-dir",
-                               str(tmp_path / "store")], cwd=REPO, env=env,
-                              stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    server = start_server([sys.executable, "-m", "fieldtl.cli", "app", "--port", str(port), "--data-dir",
+                           str(tmp_path / "store"), *extra], cwd=REPO, env=env)
     url = f"http://127.0.0.1:{port}"
     try:
         wait_until_healthy(url)
         yield url
     finally:
-        server.terminate()
-        server.wait(timeout=20)
+        stop_server(server)
+
+
+@pytest.fixture
+def app_url(tmp_path):
+    yield from _serve(tmp_path)
+
+
+@pytest.fixture
+def gated_app_url(tmp_path):
+    yield from _serve(tmp_path, "--access-code", CODE)
 
 
 def _open_demo_test(page, url):
@@ -79,5 +88,32 @@ def test_phone_walk_through_demo_recording_and_reload(app_url, chromium_path, tm
             page.reload()
             _open_demo_test(page, app_url)
             page.get_by_text(name).first.wait_for(timeout=60_000)     # the take survived the reload
+        finally:
+            browser.close()
+
+
+@pytest.mark.browser
+def test_phone_every_page_address_shows_only_the_gate_until_the_code(gated_app_url, chromium_path):
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as playwright:
+        browser = playwright.chromium.launch(executable_path=chromium_path, args=[
+            "--disable-background-networking", "--disable-component-update", "--no-first-run", "--disable-sync"])
+        try:
+            page = browser.new_page(viewport=PHONE)
+            for path in PAGE_PATHS:
+                page.goto(f"{gated_app_url}/{path}")
+                page.get_by_label("Access code").wait_for(timeout=60_000)
+                page.wait_for_load_state("networkidle")
+                body = page.locator("body").inner_text()
+                assert "Invented demo" not in body and "INVENTED DEMO" not in body, path
+                headings = page.get_by_role("heading").all_inner_texts()
+                assert [h.strip() for h in headings] == ["fieldtl"], (path, headings)
+                assert page.locator("[data-testid='stNavigation'], [data-testid='stSidebarNav'], "
+                                    "[data-testid='stTopNavLink']").count() == 0, path
+                assert page.evaluate("document.documentElement.scrollWidth") <= PHONE["width"]
+            page.get_by_label("Access code").fill("K7M2 Q9TX 4HVW")
+            page.get_by_role("button", name="Open").click()
+            page.get_by_role("heading", name="Projects", exact=True).wait_for(timeout=60_000)
         finally:
             browser.close()

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import make_data
 from conftest import node_executable
-from live_server import free_port, wait_until_healthy
+from live_server import free_port, start_server, stop_server, wait_until_healthy
 import numpy as np
 import pytest
 import soundfile
@@ -243,18 +243,17 @@ def streamlit_app(tmp_path):
     (tmp_path / "app.py").write_text(APP.format(out=str(tmp_path)))
     port = free_port()
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(REPO), os.environ.get("PYTHONPATH", "")]))
-    server = subprocess.Popen(
+    server = start_server(
         [sys.executable, "-m", "streamlit", "run", str(tmp_path / "app.py"), "--server.headless", "true",
          "--server.port", str(port), "--server.address", "127.0.0.1",
          "--browser.gatherUsageStats", "false", "--server.fileWatcherType", "none"],
-        cwd=tmp_path, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        cwd=tmp_path, env=env)
     url = f"http://127.0.0.1:{port}"
     try:
         wait_until_healthy(url)
         yield url, tmp_path
     finally:
-        server.terminate()
-        server.wait(timeout=10)
+        stop_server(server)
 
 
 @pytest.mark.browser

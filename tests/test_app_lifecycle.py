@@ -1,0 +1,90 @@
+"""`fieldtl app`: the access code it hands the server, and stopping it leaves no process behind."""
+
+import os
+import re
+import signal
+import sys
+import time
+from pathlib import Path
+
+from live_server import free_port, group_alive, start_server, stop_server, wait_until_healthy
+import pytest
+
+from fieldtl import cli
+from fieldtl.ui import access
+
+REPO = Path(__file__).resolve().parents[1]
+
+
+@pytest.fixture
+def launched(monkeypatch, tmp_path):
+    """Run `fieldtl app` in this process up to the point where it would become the server."""
+    monkeypatch.chdir(tmp_path)                        # the launcher changes directory before it execs
+    monkeypatch.delenv(access.ENV_VAR, raising=False)
+    seen = {}
+
+    def fake_execve(path, argv, env):
+        seen.update(path=path, argv=argv, env=env)
+        raise SystemExit(0)
+
+    monkeypatch.setattr(os, "execve", fake_execve)
+
+    def launch(*argv):
+        with pytest.raises(SystemExit):
+            cli.main(["app", "--data-dir", str(tmp_path / "store"), *argv])
+        return seen
+    return launch
+
+
+def test_served_beyond_this_machine_a_grouped_code_is_made_and_handed_over(launched, capsys):
+    seen = launched("--host", "0.0.0.0")
+    code = seen["env"][access.ENV_VAR]
+    assert re.fullmatch(r"[2-9a-hjkmnp-z]{4}(-[2-9a-hjkmnp-z]{4}){2}", code)
+    assert f"Access code for every browser: {code}" in capsys.readouterr().out
+    assert seen["argv"][:4] == [sys.executable, "-m", "streamlit", "run"]
+
+
+def test_on_this_machine_alone_no_code_is_asked_unless_one_is_chosen(launched, monkeypatch):
+    assert access.ENV_VAR not in launched()["env"]
+    monkeypatch.setenv(access.ENV_VAR, "K7M2 Q9TX 4HVW")
+    assert launched()["env"][access.ENV_VAR] == "K7M2 Q9TX 4HVW"
+    assert launched("--access-code", "q9tx-k7m2-4hvw")["env"][access.ENV_VAR] == "q9tx-k7m2-4hvw"
+
+
+@pytest.mark.parametrize("where", ["option", "environment"])
+def test_a_weak_chosen_code_is_refused_in_one_line(monkeypatch, tmp_path, capsys, where):
+    monkeypatch.delenv(access.ENV_VAR, raising=False)
+    argv = ["app", "--data-dir", str(tmp_path / "store")]
+    if where == "option":
+        argv += ["--access-code", "4f2a9c"]
+    else:
+        monkeypatch.setenv(access.ENV_VAR, "4f2a9c")
+    assert cli.main(argv) == 2
+    error = capsys.readouterr().err
+    source = "--access-code" if where == "option" else access.ENV_VAR
+    assert error.startswith(f"fieldtl: {source}: too easy to guess") and error.count("\n") == 1
+    assert "4f2a9c" not in error and not (tmp_path / "store").exists()
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("stop_signal", [signal.SIGTERM, signal.SIGINT])
+def test_a_signal_to_fieldtl_app_leaves_no_process_in_its_group(tmp_path, stop_signal):
+    port = free_port()
+    env = {k: v for k, v in os.environ.items() if k != access.ENV_VAR}
+    env["FIELDTL_NO_DEMO"] = "1"
+    server = start_server([sys.executable, "-m", "fieldtl.cli", "app", "--port", str(port), "--data-dir",
+                           str(tmp_path / "store")], cwd=REPO, env=env)
+    try:
+        wait_until_healthy(f"http://127.0.0.1:{port}")
+        # fieldtl became the server: the same process now runs streamlit (nothing else to orphan).
+        if Path("/proc").is_dir():
+            assert b"streamlit" in Path(f"/proc/{server.pid}/cmdline").read_bytes()
+        os.kill(server.pid, stop_signal)                  # to fieldtl's process only, not the group
+        server.wait(timeout=15)                           # reaps it; fails the test if it does not stop
+        deadline = time.monotonic() + 5.0
+        while group_alive(server.pid) and time.monotonic() < deadline:
+            time.sleep(0.1)
+        assert not group_alive(server.pid)
+    finally:
+        if group_alive(server.pid):
+            stop_server(server)
