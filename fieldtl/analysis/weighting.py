@@ -68,7 +68,8 @@ def weighting_sos(weighting: Weighting, *, sample_rate_hz: float) -> np.ndarray:
     """Second-order sections of the digital A or C weighting filter at ``sample_rate_hz``.
 
     Designed once per process for each weighting and rate; the array is shared and read-only
-    (``scipy.signal.sosfilt`` refuses read-only sections: filter with a copy). Does not check the IEC 61672-1 tolerances; see the weighting tests for that.
+    (``scipy.signal.sosfilt`` refuses read-only sections: filter with a copy). Does not check
+    the IEC 61672-1 tolerances; see the weighting tests for that.
     """
     if weighting not in ("A", "C"):
         raise InputError(f"frequency weighting must be 'A' or 'C', got {weighting!r}")
