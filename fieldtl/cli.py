@@ -9,7 +9,6 @@ is a bug: it is reported in one line as an internal error with exit status 70.
 from __future__ import annotations
 
 import argparse
-import json
 import math
 import os
 import re
@@ -479,7 +478,8 @@ def _print_findings(findings: Sequence[Any]) -> None:
 
 
 def _write_json(path: Path, document: dict[str, Any]) -> None:
-    _write_text(path, json.dumps(document, indent=2, ensure_ascii=False) + "\n")
+    from fieldtl.report.export import json_text
+    _write_text(path, json_text(document))
 
 
 def _write_text(path: Path, text: str) -> None:

@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import csv
 import io
+import json
+import math
 from typing import Any
 
 from fieldtl.assess import Assessment
@@ -238,6 +240,34 @@ def grouped_findings(findings: tuple[Finding, ...]) -> list[tuple[Finding, int, 
     folded = [(members[0], len(members), tuple(f.band_hz for f in members if f.band_hz is not None))
               for members in groups.values()]
     return sorted(folded, key=lambda group: _SEVERITY_ORDER.get(group[0].severity, 3))
+
+
+def json_text(document: dict[str, Any]) -> str:
+    """``document`` as strict JSON text (RFC 8259: no NaN or Infinity), as every JSON output writes it.
+
+    A float that is not finite becomes null; a document with a "warnings" list then gains one
+    ``non_finite_value`` finding naming where. Does not change ``document``.
+    """
+    replaced: list[str] = []
+    cleaned = _finite_only(document, "", replaced)
+    if replaced and isinstance(cleaned.get("warnings"), list):
+        cleaned["warnings"] += [Finding("non_finite_value", "warning",
+                                        f"{where}: not a finite number; written as null",
+                                        "check the recording or the input that led to this value").as_json()
+                                for where in replaced]
+    return json.dumps(cleaned, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def _finite_only(value: Any, where: str, replaced: list[str]) -> Any:
+    if isinstance(value, float) and not math.isfinite(value):
+        replaced.append(where or "value")
+        return None
+    if isinstance(value, dict):
+        return {key: _finite_only(item, f"{where}.{key}" if where else str(key), replaced)
+                for key, item in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite_only(item, f"{where}[{i}]", replaced) for i, item in enumerate(value)]
+    return value
 
 
 def json_number(value: float) -> float | int:

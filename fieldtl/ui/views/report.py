@@ -1,12 +1,11 @@
 """Report and export: the PDF report, and every band value as CSV and JSON."""
 
 import dataclasses
-import json
 
 import streamlit as st
 
 from fieldtl.errors import FieldTLError
-from fieldtl.report.export import assessment_to_csv, assessment_to_json
+from fieldtl.report.export import assessment_to_csv, assessment_to_json, json_text
 from fieldtl.report.pdf import ReportDetails, assessment_to_pdf
 from fieldtl.ui import cached, common, gate
 
@@ -63,7 +62,6 @@ with common.fenced():
         common.download_button("Download the PDF report", made[1], file_name=f"{stem}.pdf", mime="application/pdf")
     common.download_button("Download band values (CSV)", assessment_to_csv(assessment), file_name=f"{stem}.csv",
                            mime="text/csv")
-    common.download_button("Download everything (JSON)", json.dumps(assessment_to_json(assessment), indent=2,
-                                                                    ensure_ascii=False),
+    common.download_button("Download everything (JSON)", json_text(assessment_to_json(assessment)),
                            file_name=f"{stem}.json", mime="application/json")
     common.cautions()
