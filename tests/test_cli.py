@@ -196,3 +196,118 @@ def test_sweep_written_by_signal_is_deconvolved_by_decay(tmp_path, capsys):
     document = json.loads((tmp_path / "d.json").read_text())
     mid = [document["T20_s"][document["frequencies_hz"].index(f)] for f in (500, 630, 800, 1000, 1250, 1600, 2000)]
     assert np.mean(mid) == pytest.approx(0.6, rel=0.04)
+
+
+# --- issue 8: the causes of tracebacks found by fuzzing, one test each (no traceback, exit 2, one line) ----
+
+def _one_line_refusal(capsys, *argv):
+    code, out, err = _run(capsys, *argv)
+    assert code == 2, (code, err)
+    assert err.count("\n") == 1 and err.startswith("fieldtl: ") and "Traceback" not in err
+    return err
+
+
+@pytest.mark.parametrize("suffix", ["xyz", "PNG.exe", "pgf", ""])
+def test_cause_unsupported_plot_suffix_refused_before_the_analysis(tmp_path, capsys, suffix):
+    # pgf is in matplotlib's list but needs LaTeX; no suffix at all would make matplotlib pick one.
+    survey = _csv_survey(tmp_path)
+    target = tmp_path / (f"r.{suffix}" if suffix else "r")
+    err = _one_line_refusal(capsys, "assess", survey, "--plot", target)
+    assert "--plot must end in one of .png" in err and not target.exists()
+
+
+def test_cause_plot_suffix_in_capitals_is_accepted(tmp_path, capsys):
+    survey = _csv_survey(tmp_path)
+    code, out, _ = _run(capsys, "assess", survey, "--plot", tmp_path / "r.PNG")
+    assert code == 0 and (tmp_path / "r.PNG").read_bytes()[:4] == b"\x89PNG"
+
+
+@pytest.mark.parametrize("option", ["--json", "--csv", "--plot"])
+def test_cause_output_folder_missing_fails_before_the_analysis(tmp_path, capsys, option):
+    survey = _csv_survey(tmp_path)
+    err = _one_line_refusal(capsys, "assess", survey, option, tmp_path / "missing" / "dir" / "x.png")
+    assert "x.png: cannot write " + option in err and "does not exist" in err
+    assert "Verdict" not in capsys.readouterr().out       # nothing was analysed
+
+
+def test_cause_output_is_a_folder(tmp_path, capsys):
+    survey = _csv_survey(tmp_path)
+    (tmp_path / "out.json").mkdir()
+    assert "that is a folder" in _one_line_refusal(capsys, "assess", survey, "--json", tmp_path / "out.json")
+
+
+@pytest.mark.parametrize("seed, ok", [("-1", False), ("0", True), (str(2**63 - 1), True), (str(2**63), False)])
+def test_cause_negative_or_huge_seed(tmp_path, capsys, seed, ok):
+    # numpy's generator refuses negative seeds with a ValueError; 0..2**63-1 is our documented range.
+    argv = ("signal", "white", tmp_path / "w.wav", "--seconds", "0.5", "--seed", seed)
+    if ok:
+        assert _run(capsys, *argv)[0] == 0
+    else:
+        assert "--seed must be a whole number from 0 to" in _one_line_refusal(capsys, *argv)
+
+
+@pytest.mark.parametrize("kind", ["pink", "white", "sweep"])
+@pytest.mark.parametrize("seconds", ["1e9", "1e400", "nan", "-3", "0", "700"])
+def test_cause_absurd_seconds_refused_before_allocating(tmp_path, capsys, kind, seconds):
+    # 700 s at 48 kHz is 33.6 million samples, just above the 2**25 = 33.55 million limit.
+    err = _one_line_refusal(capsys, "signal", kind, tmp_path / "s.wav", "--seconds", seconds)
+    assert "duration" in err or "too long" in err or "shorter than" in err
+    assert not (tmp_path / "s.wav").exists()
+
+
+@pytest.mark.parametrize("rate, ok", [("7999", False), ("8000", True), ("384000", True), ("384001", False),
+                                      ("0", False), ("-48000", False)])
+def test_cause_absurd_sample_rate(tmp_path, capsys, rate, ok):
+    argv = ("signal", "white", tmp_path / "w.wav", "--seconds", "0.2", "--sample-rate-hz", rate,
+            "--high-hz", "3000")
+    if ok:
+        assert _run(capsys, *argv)[0] == 0
+    else:
+        assert "sample rate must be 8,000 to 384,000 Hz" in _one_line_refusal(capsys, *argv)
+
+
+@pytest.mark.parametrize("length, message", [("1e9", "--sweep-length-s must be a number from 0.1 to 600 s"),
+                                             ("nan", "--sweep-length-s must be"),
+                                             ("0.05", "--sweep-length-s must be")])
+def test_cause_absurd_sweep_length_refused_before_reading(tmp_path, capsys, length, message):
+    wav = make_data.write(tmp_path / "ir.wav", np.zeros(48_000))
+    err = _one_line_refusal(capsys, "decay", wav, "--method", "sweep", "--sweep-start-hz", "50",
+                            "--sweep-stop-hz", "10000", "--sweep-length-s", length)
+    assert message in err
+
+
+def test_cause_sweep_above_half_the_recording_rate(tmp_path, capsys):
+    wav = make_data.write(tmp_path / "ir.wav", np.zeros(44_100), sample_rate_hz=44_100)
+    err = _one_line_refusal(capsys, "decay", wav, "--method", "sweep", "--sweep-start-hz", "50",
+                            "--sweep-stop-hz", "30000", "--sweep-length-s", "3")
+    assert "half the sample rate" in err
+
+
+@pytest.mark.parametrize("argv", [["signal", "pink", "x.wav", "--seconds", "loud"], ["bands"],
+                                  ["decay", "x.wav", "--method", "clap" * 40], ["--bogus"]])
+def test_cause_argparse_usage_block_is_one_line(capsys, argv):
+    err = _one_line_refusal(capsys, *argv)
+    assert "usage:" not in err and "clap" * 21 not in err
+
+
+def test_cause_nul_and_newline_in_file_names(tmp_path, capsys):
+    assert "cannot hold a NUL" in _one_line_refusal(capsys, "assess", _csv_survey(tmp_path), "--csv",
+                                                    str(tmp_path / "a\x00.csv"))
+    err = _one_line_refusal(capsys, "bands", tmp_path / ("a\nb" * 60 + ".wav"))
+    assert "file not found" in err and len(err) < 120
+
+
+def test_cause_float_overflow_in_options(tmp_path, capsys):
+    # argparse reads 1e400 as inf: every option with a range refuses it by name.
+    err = _one_line_refusal(capsys, "signal", "pink", tmp_path / "p.wav", "--level-dbfs=-1e400")
+    assert "--level-dbfs must be a number from -120 to 0" in err
+    assert "--calibrator-db" in _one_line_refusal(capsys, "bands", make_data.write(tmp_path / "s.wav", np.zeros(4800)),
+                                                  "--calibration", tmp_path / "s.wav", "--calibrator-db", "1e400")
+
+
+def test_internal_error_is_one_line_with_exit_70(tmp_path, capsys, monkeypatch):
+    # The last resort for a bug of ours: one line naming the input, exit 70, never a traceback.
+    import fieldtl.survey
+    monkeypatch.setattr(fieldtl.survey, "load_survey", lambda path: 1 / 0)
+    code, _, err = _run(capsys, "assess", _csv_survey(tmp_path))
+    assert code == 70 and err == "fieldtl: survey.toml: internal error (ZeroDivisionError); please report it with this file\n"

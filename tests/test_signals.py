@@ -8,9 +8,9 @@ import pytest
 import soundfile
 from scipy import signal
 
-from fieldtl.audio.signals import (SweepSpec, checked_audio, exponential_sweep,
-                                   impulse_response_from_sweep, inverse_sweep, pink_noise, white_noise,
-                                   write_signal_wav)
+from fieldtl.audio.signals import (MAX_GENERATED_SAMPLES, SweepSpec, checked_audio, exponential_sweep,
+                                   impulse_response_from_sweep, inverse_sweep, pink_noise, sample_count,
+                                   white_noise, write_signal_wav)
 from fieldtl.cautions import HEARING_CAUTION
 from fieldtl.errors import InputError
 
@@ -225,3 +225,10 @@ def test_bad_sweep_specs_raise(kwargs):
 def test_hearing_caution_is_one_plain_sentence():
     assert HEARING_CAUTION.count(".") == 1 and HEARING_CAUTION.endswith(".")
     assert "hearing protection" in HEARING_CAUTION and "gradually" in HEARING_CAUTION
+
+
+def test_longest_signal_limit_at_its_edge():
+    # 2**25 samples at 48 kHz is 699.05 s: just inside is allowed, one sample more is refused.
+    assert sample_count("noise", MAX_GENERATED_SAMPLES / 48_000, 48_000) == 2**25
+    with pytest.raises(InputError, match="too long; at most 699 s"):
+        sample_count("noise", (MAX_GENERATED_SAMPLES + 1) / 48_000, 48_000)
