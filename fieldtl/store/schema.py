@@ -199,8 +199,6 @@ def check_project_texts(*, name: Any, client: Any, address: Any, engineer: Any) 
 def check_settings(value: Any, what: str) -> None:
     """A test's settings: a JSON object of bounded size whose known keys hold what the app writes."""
     check_json_object(value, what)
-    if len(json.dumps(dict(value), ensure_ascii=False)) > MAX_SETTINGS_CHARS:
-        raise InputError(f"{what}: more than the {MAX_SETTINGS_CHARS} characters allowed")
     if CONSTRUCTION_SETTING in value:
         check_text(value[CONSTRUCTION_SETTING], f"{what} {CONSTRUCTION_SETTING}", max_chars=MAX_PASTED_CHARS)
     if REPORT_SETTING in value:
@@ -211,6 +209,8 @@ def check_settings(value: Any, what: str) -> None:
             if key not in REPORT_DETAIL_CHARS:
                 raise InputError(f"{what} {REPORT_SETTING}: unknown key {echo(key)}")
             check_text(text, f"{what} {REPORT_SETTING} {key}", max_chars=REPORT_DETAIL_CHARS[key])
+    if len(json.dumps(dict(value), ensure_ascii=False)) > MAX_SETTINGS_CHARS:
+        raise InputError(f"{what}: more than the {MAX_SETTINGS_CHARS} characters allowed")
 
 
 def check_json_object(value: Any, what: str) -> None:
@@ -221,6 +221,8 @@ def check_json_object(value: Any, what: str) -> None:
         text = json.dumps(dict(value), allow_nan=False)
     except (TypeError, ValueError) as exc:
         raise InputError(f"{what}: not storable as JSON ({exc})") from None
+    except RecursionError:
+        raise InputError(f"{what}: nested too deeply") from None
     if json.loads(text) != value:
         raise InputError(f"{what}: does not survive JSON unchanged (use string keys and lists, not tuples)")
 
