@@ -208,7 +208,7 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
                   band_levels_csv=band_levels_csv)
 
 
-_COLUMN = re.compile(r"^(?P<kind>L1|L2|Li|B|T|L1c|L2c)(?:_s(?P<speaker>[0-9]{1,2}))?(?:_(?P<label>[A-Za-z0-9]+))?$")
+_COLUMN = re.compile(r"^(?P<kind>L1|L2|Li|B|T|L1c|L2c)(?:_s(?P<speaker>[0-9]{1,2}))?(?:_(?!s[0-9])(?P<label>[^\W_]+))?$")
 _COLUMN_ROLES: dict[str, str] = {"L1": "source", "L2": "receiving", "Li": "impact", "B": "background",
                                  "T": "decay", "L1c": "source_corner", "L2c": "receiving_corner"}
 

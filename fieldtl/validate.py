@@ -113,9 +113,9 @@ def number(value: Any, what: str, *, low: float, high: float, unit: str = "", in
     """
     kind = "whole number" if integer else "number"
     span = f"{'above' if low_open else 'from'} {low:g} {'to below' if high_open else 'to'} {high:g}{unit}"
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or (integer and not isinstance(value, int)):
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise InputError(f"{what} must be a {kind} {span}, got {type_name(value)} {echo(value)}")
-    if isinstance(value, float) and not math.isfinite(value):
+    if (integer and not isinstance(value, int)) or (isinstance(value, float) and not math.isfinite(value)):
         raise InputError(f"{what} must be a {kind} {span}, got {echo(value)}")
     too_low = value <= low if low_open else value < low
     too_high = value >= high if high_open else value > high
