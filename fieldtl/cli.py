@@ -146,6 +146,13 @@ def _parser() -> argparse.ArgumentParser:
     demo = sub.add_parser("demo", help="assess the invented demo survey in sample_audio/")
     demo.add_argument("--out", type=Path, help="folder for demo JSON, CSV and chart (default: print only)")
     demo.set_defaults(run=_run_demo)
+
+    store = sub.add_parser("store", help="look after the project store")
+    store_actions = store.add_subparsers(dest="store_action", required=True, metavar="ACTION")
+    clean = store_actions.add_parser("clean", help="remove audio no take refers to and unfinished uploads or "
+                                                   "exports older than an hour")
+    clean.add_argument("--data-dir", type=Path, help="folder of the project store (default: your user data folder)")
+    clean.set_defaults(run=_run_store_clean)
     return parser
 
 
@@ -391,6 +398,21 @@ def _run_signal(args: argparse.Namespace) -> int:
               f"{args.level_dbfs:g} dB re full scale RMS")
     write_signal_wav(args.out, samples, sample_rate_hz=args.sample_rate_hz)
     print(f"wrote {args.out}")
+    return 0
+
+
+def _run_store_clean(args: argparse.Namespace) -> int:
+    from fieldtl.store import Store, default_data_dir
+    from fieldtl.store.connection import DATABASE_NAME
+
+    data_dir = (args.data_dir or default_data_dir()).expanduser()
+    if not (data_dir / DATABASE_NAME).is_file():
+        raise InputError(f"{file_label(data_dir)}: no fieldtl store in this folder ({DATABASE_NAME} not found)")
+    with Store.open(data_dir / DATABASE_NAME) as store:
+        removed = store.clean_files()
+    for path in removed:
+        print(f"removed {path.parent.name}/{path.name}")
+    print(f"{len(removed)} file{'' if len(removed) == 1 else 's'} removed from the store in {data_dir}")
     return 0
 
 

@@ -26,6 +26,7 @@ def store() -> Store:
     path = default_database_path()
     path.parent.mkdir(parents=True, exist_ok=True)
     handle = Store.open(path)
+    handle.clean_files()          # orphan audio and stale .incoming-*/.part leftovers of earlier runs
     if not handle.list_projects() and DEMO_SURVEY.is_file() and not os.environ.get("FIELDTL_NO_DEMO"):
         project = handle.create_project(DEMO_PROJECT, client="Invented client (demo data)",
                                         address="Invented address, not a real place", engineer="Demo")
