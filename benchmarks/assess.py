@@ -1,0 +1,85 @@
+"""Time of a whole assessment of the demo survey against the time it takes to read its audio.
+
+Runs the demo survey (sample_audio/survey.toml) through the core path ``fieldtl assess`` takes:
+load the survey, measure every take (calibration included), assess, and write the text and
+JSON results (in memory). Everything is imported first; each run is in this process, so filter
+designs made by the first run are reused, as they are for the later takes of one CLI run.
+For comparison, every audio file the survey names is read whole with soundfile. Both are timed
+REPEATS times, taking turns; the medians are compared.
+
+Prints the first run apart (it designs the filters), then ends with the line
+``assess <s>s decode <s>s ratio <r>x``. Target (issue 10): ratio at most 5.
+
+Run from anywhere: ``python benchmarks/assess.py [survey.toml]``.
+"""
+
+from __future__ import annotations
+
+import os
+import statistics
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+import soundfile  # noqa: E402
+
+from fieldtl.assess import AssessOptions, assess  # noqa: E402
+from fieldtl.measure import measure_survey  # noqa: E402
+from fieldtl.report.export import assessment_to_json, assessment_to_text  # noqa: E402
+from fieldtl.survey import Survey, load_survey  # noqa: E402
+
+REPEATS = 5
+DEMO = ROOT / "sample_audio" / "survey.toml"
+
+
+def run_assess(path: Path) -> str:
+    """What ``fieldtl assess <path>`` computes with its default options, as JSON text."""
+    survey = load_survey(path)
+    measured = measure_survey(survey)
+    assessment = assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings,
+                        options=AssessOptions(decision_rule="guarded", source_combination="energy"))
+    assessment_to_text(assessment)
+    return assessment_to_json(assessment)
+
+
+def audio_files(survey: Survey) -> list[Path]:
+    files = [take.file for take in survey.takes]
+    if survey.calibration is not None:
+        files.append(survey.calibration.file)
+        if survey.calibration.file_after is not None:
+            files.append(survey.calibration.file_after)
+    return files
+
+
+def decode_all(files: list[Path]) -> int:
+    return sum(soundfile.read(file, dtype="float64")[0].size for file in files)
+
+
+def main() -> None:
+    path = Path(sys.argv[1]) if len(sys.argv) > 1 else DEMO
+    files = audio_files(load_survey(path))
+    start = time.perf_counter()
+    first_json = run_assess(path)
+    first_s = time.perf_counter() - start
+    assess_s, decode_s = [], []
+    for _ in range(REPEATS):
+        start = time.perf_counter()
+        assert run_assess(path) == first_json   # the same result every time
+        assess_s.append(time.perf_counter() - start)
+        start = time.perf_counter()
+        decode_all(files)
+        decode_s.append(time.perf_counter() - start)
+    assess_median, decode_median = statistics.median(assess_s), statistics.median(decode_s)
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"{path.name}: {len(files)} audio files, {sum(soundfile.info(f).duration for f in files):.0f} s of audio; "
+          f"median of {REPEATS}, load average {load:.2f}")
+    print(f"first run in this process (designs the filters) {first_s:.3f} s")
+    print(f"assess runs: " + " ".join(f"{t:.3f}" for t in assess_s) + " s")
+    print(f"assess {assess_median:.3f}s decode {decode_median:.3f}s ratio {assess_median / decode_median:.1f}x")
+
+
+if __name__ == "__main__":
+    main()
