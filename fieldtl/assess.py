@@ -26,6 +26,7 @@ from fieldtl.qa import (TakeSummary, check_against_lab_rating, check_astm_scope,
                         check_source_spectrum, check_spatial_spread, check_stationarity)
 from fieldtl.rating import Rating, rate_e413, rate_e989, rate_iso717_1, rate_iso717_2
 from fieldtl.survey import Geometry, Survey
+from fieldtl.validate import VERDICT_BLOCKING_CODES
 from fieldtl.iso12999 import SITUATIONS, band_uncertainty_db, single_number_uncertainty
 from fieldtl.uncertainty import (CombinedUncertainty, Verdict, band_standard_error_db, decide,
                                  measurement_uncertainty, parse_requirement)
@@ -124,6 +125,11 @@ def assess(survey: Survey, takes: Sequence[TakeSummary], *, calibrated: bool,
     situation = survey.uncertainty_situation
     table_u = _table_uncertainties(ratings, situation)
     verdict, combined, verdict_findings = _verdict(survey, result, rated, options)
+    blocking = next((f for f in found if f.severity == "error" and f.code in VERDICT_BLOCKING_CODES), None)
+    if blocking is not None and survey.requirement:     # input outside the standard's scope: no verdict
+        verdict, combined = None, None
+        verdict_findings = (Finding("verdict_not_possible", "error", f"no verdict on '{survey.requirement}': "
+                                    f"{blocking.message}", blocking.action),)
     found += verdict_findings
     band_u = band_uncertainty_db(survey.test_type, result.nominal_hz, situation=situation)
     return Assessment(title=survey.title, test_type=survey.test_type, source_name=survey.source_name,

@@ -259,7 +259,7 @@ def check_geometry(*, receiving_volume_m3: float, source_volume_m3: float | None
     low, high = VOLUME_SCOPE_M3
     for room, volume in (("receiving", receiving_volume_m3), ("source", source_volume_m3)):
         if volume is not None and not low <= volume <= high:
-            found.append(Finding("volume_out_of_scope", "warning",
+            found.append(Finding("volume_out_of_scope", "error",
                                  f"{room} room volume {volume:g} m3 is outside the {low:g}-{high:g} m3 the field "
                                  "standards are written for", "Check the volume; state the deviation in the report.",
                                  clause="ISO 16283-2 scope (verified); ISO 16283-1 (from memory)"))

@@ -45,6 +45,9 @@ DENSITY_KG_M3 = (1.0, 25_000.0)          # the densest metals are below 23 000 k
 YOUNGS_MODULUS_GPA = (0.001, 1200.0)     # soft boards to diamond
 LOSS_FACTOR = (1e-4, 1.0)                # internal loss factor; 1 itself is excluded
 POISSON_RATIO = (0.0, 0.5)               # isotropic solids; 0.5 itself is excluded
+# Findings (fieldtl.qa) about input inside the physical range but outside a standard's scope:
+# severity "error", and the verdict is withheld while one is present (fieldtl.assess).
+VERDICT_BLOCKING_CODES = frozenset({"volume_out_of_scope"})
 MAX_FILE_BYTES = 1_000_000               # a survey, construction or band-level file
 MAX_CELL_CHARS = 64                      # one cell of a band-level file
 

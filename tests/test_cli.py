@@ -311,3 +311,34 @@ def test_internal_error_is_one_line_with_exit_70(tmp_path, capsys, monkeypatch):
     monkeypatch.setattr(fieldtl.survey, "load_survey", lambda path: 1 / 0)
     code, _, err = _run(capsys, "assess", _csv_survey(tmp_path))
     assert code == 70 and err == "fieldtl: survey.toml: internal error (ZeroDivisionError); please report it with this file\n"
+
+
+# --- issue 8 item 3: values outside the standard's scope block the verdict ------------------------------
+
+@pytest.mark.parametrize("volume_m3, verdict", [("10", True), ("250", True), ("9.9", False), ("250.1", False)])
+def test_volume_outside_the_field_standards_scope_withholds_the_verdict(tmp_path, capsys, volume_m3, verdict):
+    # ISO 16283-2 scope: rooms of 10 to 250 m3 (ISO 16283-2:2015 clause 1, as transcribed; verify against a
+    # licensed copy); ISO 16283-1 the same (from memory). Inside: a verdict; outside: an ERROR naming the value.
+    survey = _csv_survey(tmp_path)
+    survey.write_text(survey.read_text().replace("receiving_volume_m3 = 36.0", f"receiving_volume_m3 = {volume_m3}")
+                      .replace("source_volume_m3 = 40.0\n", ""))
+    code, out, _ = _run(capsys, "assess", survey, "--json", tmp_path / "r.json")
+    document = json.loads((tmp_path / "r.json").read_text())
+    codes = {w["code"]: w for w in document["warnings"]}
+    assert code == 0
+    if verdict:
+        assert document["verdict"] is not None and "volume_out_of_scope" not in codes
+    else:
+        assert document["verdict"] is None and "Verdict: PASS" not in out
+        assert codes["volume_out_of_scope"]["severity"] == "error" and f"volume {volume_m3} m3" in \
+            codes["volume_out_of_scope"]["message"]
+        assert codes["verdict_not_possible"]["severity"] == "error"
+
+
+def test_t_typed_in_milliseconds_never_gives_a_pass(tmp_path, capsys):
+    # The issue's case: T = 500 (ms typed as s) used to give DnT,w 84 and a PASS.
+    survey = _csv_survey(tmp_path)
+    csv_file = tmp_path / "slm.csv"
+    csv_file.write_text(csv_file.read_text().replace(",0.5,0.5,0.5", ",500,500,500"))
+    code, out, err = _run(capsys, "assess", survey)
+    assert code == 2 and "PASS" not in out and "not milliseconds" in err and err.count("\n") == 1
