@@ -30,7 +30,7 @@ from fieldtl.store.schema import (Project, ProjectSnapshot, TakeRecord, TestReco
                                   check_take_fields, check_text)
 from fieldtl.store.sqlite import Store
 from fieldtl.store.survey_view import check_snapshot
-from fieldtl.validate import echo
+from fieldtl.validate import check_keys, echo
 
 ARCHIVE_FORMAT = "fieldtl-project-archive"
 ARCHIVE_VERSION = 1
@@ -331,10 +331,7 @@ def _parse_take(raw: Any, test_id: int, test_type: str, name: str, where: str) -
 def _object(value: Any, keys: tuple[str, ...], name: str, where: str) -> Mapping[str, Any]:
     if not isinstance(value, dict):
         raise InputError(f"{name}: {where} must be a JSON object")
-    unknown, missing = sorted(set(value) - set(keys)), [k for k in keys if k not in value]
-    if unknown or missing:
-        problem = f"unknown key {unknown[0]!r}" if unknown else f"missing key {missing[0]!r}"
-        raise InputError(f"{name}: {where}: {problem}")
+    check_keys(value, keys, where, name, required=keys)
     return value
 
 
