@@ -1,7 +1,9 @@
 """Chart of a measured curve against its shifted reference curve (matplotlib, no pyplot state).
 
 Unfavourable deviations are shaded; bands limited by background noise are drawn as bounds
-(an arrow pointing the way the true value may lie).
+(an arrow pointing the way the true value may lie). A figure's size never depends on its title:
+a user's title is one line, cut with "…" to the figure's width (see :func:`fitted_title`), so
+even a tight bounding box (Streamlit's st.pyplot) stays the same size.
 """
 
 from __future__ import annotations
@@ -9,6 +11,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from fieldtl.assess import Assessment
@@ -20,12 +23,16 @@ from fieldtl.rating import Rating
 MEASURED_COLOUR = "#1b4f72"
 REFERENCE_COLOUR = "#7d7d7d"
 DEVIATION_COLOUR = "#e67e22"
+FIGURE_SIZE_IN = (7.0, 4.2)
+FIGURE_DPI = 110
+TITLE_FONT_SIZE = 10
+TITLE_WIDTH_FRACTION = 0.9         # of the figure's width, left for a title line
 
 
 def rating_figure(spectrum: BandSpectrum, rating: Rating, *, limited: tuple[bool, ...] = (),
                   title: str = "") -> Figure:
     """Measured band values, the shifted reference curve and the unfavourable deviations."""
-    figure = Figure(figsize=(7.0, 4.2), dpi=110, layout="constrained")
+    figure = Figure(figsize=FIGURE_SIZE_IN, dpi=FIGURE_DPI, layout="constrained")
     axes = figure.add_subplot()
     bands = spectrum.nominal_hz
     x = np.arange(len(bands))
@@ -54,7 +61,8 @@ def rating_figure(spectrum: BandSpectrum, rating: Rating, *, limited: tuple[bool
     headline = f"{rating.descriptor} = {rating.single_number_db} dB"
     if rating.bound:
         headline += f" ({rating.bound} bound)"
-    axes.set_title(f"{title}\n{headline}" if title else headline, fontsize=10, parse_math=False)
+    title = fitted_title(figure, title)
+    axes.set_title(f"{title}\n{headline}" if title else headline, fontsize=TITLE_FONT_SIZE, parse_math=False)
     axes.legend(fontsize=7, loc="best")
     return figure
 
@@ -78,7 +86,7 @@ def save_assessment_plot(assessment: Assessment, path: str | Path, *, descriptor
 
 def construction_figure(comparison: Comparison, *, title: str = "") -> Figure:
     """Predicted R of the declared construction beside the measured R', with the gap per band."""
-    figure = Figure(figsize=(7.0, 4.2), dpi=110, layout="constrained")
+    figure = Figure(figsize=FIGURE_SIZE_IN, dpi=FIGURE_DPI, layout="constrained")
     axes = figure.add_subplot()
     bands = comparison.gap_db.nominal_hz
     x = np.arange(len(bands))
@@ -92,7 +100,31 @@ def construction_figure(comparison: Comparison, *, title: str = "") -> Figure:
     axes.set_xlabel("one-third-octave band (Hz)")
     axes.set_ylabel("dB")
     axes.grid(alpha=0.3)
-    axes.set_title(title or "Declared construction: prediction against the field result", fontsize=10,
-                   parse_math=False)
+    axes.set_title(fitted_title(figure, title) or "Declared construction: prediction against the field result",
+                   fontsize=TITLE_FONT_SIZE, parse_math=False)
     axes.legend(fontsize=7, loc="best")
     return figure
+
+
+def fitted_title(figure: Figure, title: str) -> str:
+    """``title`` as one line (any whitespace run, newlines included, becomes one space), cut with
+    "…" so that it spans at most TITLE_WIDTH_FRACTION of the figure's width at the title's font."""
+    line = " ".join(title.split())
+    if not line:
+        return ""
+    renderer = FigureCanvasAgg(figure).get_renderer()
+    probe = figure.text(0.0, 0.0, "", fontsize=TITLE_FONT_SIZE, parse_math=False)
+    limit_px = TITLE_WIDTH_FRACTION * figure.bbox.width
+
+    def fits(text: str) -> bool:
+        probe.set_text(text)
+        return probe.get_window_extent(renderer).width <= limit_px
+
+    if not fits(line):
+        low, high = 0, min(len(line), 400)      # no character is narrower than 1/400 of the width
+        while low < high:                        # the longest cut that still fits
+            middle = (low + high + 1) // 2
+            low, high = (middle, high) if fits(line[:middle].rstrip() + "…") else (low, middle - 1)
+        line = line[:low].rstrip() + "…"
+    probe.remove()
+    return line
