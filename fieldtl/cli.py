@@ -11,7 +11,6 @@ from __future__ import annotations
 import argparse
 import math
 import os
-import re
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -19,62 +18,44 @@ from typing import Any
 
 from fieldtl import __version__
 from fieldtl.cautions import CAUTIONS, HEARING_CAUTION
+from fieldtl.cli_input import (EXIT_BAD_INPUT, LEVEL_DBFS, OneLineParser, channel_index, check_output, check_paths,
+                               input_name, option_number, plot_suffixes, say)
 from fieldtl.errors import FieldTLError, InputError
-from fieldtl.validate import CALIBRATOR_DB, CHANNEL, SWEEP_HZ, SWEEP_S, clean, echo, file_label
+from fieldtl.validate import CALIBRATOR_DB, SWEEP_HZ, SWEEP_S, file_label
 
-EXIT_BAD_INPUT = 2
 EXIT_INTERNAL_ERROR = 70   # EX_SOFTWARE of sysexits.h: a bug of ours, not bad input
 PROGRESS_MIN_S = 20.0   # show a progress bar for recordings at least this long, in a terminal
-MESSAGE_CHARS = 400     # longest message printed (inputs inside it are cut to 80 characters each)
-# Chart formats matplotlib writes without extra programs (pgf needs LaTeX; gif and avif need
-# optional image plugins), checked against matplotlib's own list before the analysis starts.
-PLOT_SUFFIXES = ("png", "pdf", "svg", "svgz", "jpg", "jpeg", "tif", "tiff", "webp", "eps", "ps")
-LEVEL_DBFS = (-120.0, 0.0)  # RMS level of a generated test signal
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     parser = _parser()
     try:
         args = parser.parse_args(argv)
-    except SystemExit as exc:            # --help, --version or a malformed option (one line, see _Parser)
+    except SystemExit as exc:            # --help, --version or a malformed option (one line, see OneLineParser)
         return exc.code if isinstance(exc.code, int) else EXIT_BAD_INPUT
     try:
-        _check_paths(args)
+        check_paths(args)
         return int(args.run(args) or 0)
     except FieldTLError as exc:
-        _say(str(exc))
+        say(str(exc))
         return EXIT_BAD_INPUT
     except BrokenPipeError:              # output piped into `head` and closed: not an error of ours
         sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - silence the flush at interpreter exit
         return 0
     except OSError as exc:
         name = file_label(exc.filename) if isinstance(getattr(exc, "filename", None), str) else "file"
-        _say(f"{name}: {exc.strerror or type(exc).__name__}")
+        say(f"{name}: {exc.strerror or type(exc).__name__}")
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
-        _say("interrupted")
+        say("interrupted")
         return 130
     except Exception as exc:  # noqa: BLE001 - last resort: a bug of ours still gets one line, not a traceback
-        _say(f"{_input_name(args)}: internal error ({type(exc).__name__}); please report it with this file")
+        say(f"{input_name(args)}: internal error ({type(exc).__name__}); please report it with this file")
         return EXIT_INTERNAL_ERROR
 
 
-def _say(message: str) -> None:
-    """One line on stderr, whatever the message holds (control characters and newlines removed)."""
-    print(f"fieldtl: {clean(message, MESSAGE_CHARS)}", file=sys.stderr)
-
-
-class _Parser(argparse.ArgumentParser):
-    """argparse with one-line errors: no usage block, inputs cut to 80 characters."""
-
-    def error(self, message: str) -> None:  # type: ignore[override]
-        short = re.sub(r"'([^']{80})[^']*'", lambda m: f"'{m[1][:79]}…'", message)
-        _say(f"{self.prog.removeprefix('fieldtl').strip() or 'fieldtl'}: {short} (see --help)")
-        raise SystemExit(EXIT_BAD_INPUT)
-
-
 def _parser() -> argparse.ArgumentParser:
-    parser = _Parser(prog="fieldtl", description="Field sound insulation from on-site recordings.")
+    parser = OneLineParser(prog="fieldtl", description="Field sound insulation from on-site recordings.")
     parser.add_argument("--version", action="version", version=f"fieldtl {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
@@ -163,9 +144,9 @@ def _run_bands(args: argparse.Namespace) -> int:
     from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording
     from fieldtl.measure import calibrate_file
 
-    channel = _channel(args.channel, args.file)
-    _number(args.calibrator_db, "--calibrator-db", CALIBRATOR_DB, " dB")
-    _check_output(args.json, "--json")
+    channel = channel_index(args.channel, args.file)
+    option_number(args.calibrator_db, "--calibrator-db", CALIBRATOR_DB, " dB")
+    check_output(args.json, "--json")
     recording = open_recording(args.file, channel=channel)
     calibration = (None if args.calibration is None
                    else calibrate_file(args.calibration, 0, args.calibrator_db))
@@ -204,13 +185,13 @@ def _run_decay(args: argparse.Namespace) -> int:
     from fieldtl.measure import analyse_decay
     from fieldtl.survey import TakeSpec
 
-    channel = _channel(args.channel, args.file)
+    channel = channel_index(args.channel, args.file)
     for option, value, bounds, unit in (("--sweep-start-hz", args.sweep_start_hz, SWEEP_HZ, " Hz"),
                                         ("--sweep-stop-hz", args.sweep_stop_hz, SWEEP_HZ, " Hz"),
                                         ("--sweep-length-s", args.sweep_length_s, SWEEP_S, " s")):
         if value is not None:
-            _number(value, option, bounds, unit)
-    _check_output(args.json, "--json")
+            option_number(value, option, bounds, unit)
+    check_output(args.json, "--json")
     recording = open_recording(args.file, channel=channel)
     spec = TakeSpec(file=args.file, role="decay", speaker=1, channel=recording.channel, method=args.method,
                     sweep_start_hz=args.sweep_start_hz, sweep_stop_hz=args.sweep_stop_hz,
@@ -245,9 +226,9 @@ def _run_decay(args: argparse.Namespace) -> int:
 def _run_assess(args: argparse.Namespace) -> int:
     from fieldtl.survey import load_survey
 
-    _check_output(args.json, "--json")
-    _check_output(args.csv, "--csv")
-    _check_output(args.plot, "--plot", suffixes=_plot_suffixes() if args.plot else ())
+    check_output(args.json, "--json")
+    check_output(args.csv, "--csv")
+    check_output(args.plot, "--plot", suffixes=plot_suffixes() if args.plot else ())
     survey = load_survey(args.survey)
     return _assess_and_report(survey, json_path=args.json, csv_path=args.csv, plot_path=args.plot,
                               decision=args.decision.replace("-", "_"), speaker_rule=args.speaker_rule)
@@ -298,7 +279,7 @@ def _run_predict(args: argparse.Namespace) -> int:
 
     if (args.construction is None) == (not args.layer):
         raise InputError("predict: give either a construction file or one or more --layer MATERIAL:THICKNESS_MM")
-    _check_output(args.json, "--json")
+    check_output(args.json, "--json")
     construction = load_construction(args.construction) if args.construction else construction_from_layers(args.layer)
     prediction = predict(construction)
     rating = prediction.rating
@@ -375,10 +356,10 @@ def _run_signal(args: argparse.Namespace) -> int:
 
     from fieldtl.audio.signals import MAX_SEED
 
-    _check_output(args.out, "OUT.wav", suffixes=("wav",))
+    check_output(args.out, "OUT.wav", suffixes=("wav",))
     if args.seed is not None:
-        _number(args.seed, "--seed", (0, MAX_SEED), "", integer=True)
-    _number(args.level_dbfs, "--level-dbfs", LEVEL_DBFS, " dB re full scale")
+        option_number(args.seed, "--seed", (0, MAX_SEED), "", integer=True)
+    option_number(args.level_dbfs, "--level-dbfs", LEVEL_DBFS, " dB re full scale")
     print(f"CAUTION: {HEARING_CAUTION}")
     if args.kind == "sweep":
         duration_s = 10.0 if args.seconds == 30.0 else args.seconds
@@ -417,72 +398,6 @@ def _run_store_clean(args: argparse.Namespace) -> int:
 
 
 # --- helpers ------------------------------------------------------------------------------------------
-
-def _channel(channel: int, file: Path) -> int:
-    if not CHANNEL[0] <= channel <= CHANNEL[1]:
-        raise InputError(f"{file_label(file)}: --channel counts from 1 to {CHANNEL[1]}, got {echo(channel)}")
-    return channel - 1
-
-
-def _number(value: float, option: str, bounds: tuple[float, float], unit: str, *, integer: bool = False) -> float:
-    from fieldtl import validate
-    return validate.number(value, option, low=bounds[0], high=bounds[1], unit=unit, integer=integer)
-
-
-def _check_paths(args: argparse.Namespace) -> None:
-    """Every path option is a usable name (no NUL character: the OS refuses those with a ValueError),
-    and every input file exists, before any work starts."""
-    for value in vars(args).values():
-        for path in value if isinstance(value, list) else [value]:
-            if isinstance(path, Path) and "\x00" in str(path):
-                raise InputError(f"{file_label(str(path).replace(chr(0), ' '))}: a file name cannot hold a NUL character")
-    for key, what in _INPUT_FILES.items():
-        path = getattr(args, key, None)
-        if isinstance(path, Path) and not _is_file(path):
-            raise InputError(f"{file_label(path)}: {what} not found")
-
-
-_INPUT_FILES = {"file": "file", "survey": "survey file", "construction": "construction file",
-                "calibration": "calibration recording"}
-
-
-def _is_file(path: Path) -> bool:
-    try:
-        return path.is_file()
-    except OSError:                      # e.g. a name longer than the file system allows
-        return False
-
-
-def _check_output(path: Path | None, option: str, *, suffixes: Sequence[str] = ()) -> None:
-    """Before any work: the output's folder exists and is writable, the name is not a folder, the suffix fits."""
-    if path is None:
-        return
-    name = file_label(path)
-    if suffixes and path.suffix.lower().lstrip(".") not in suffixes:
-        raise InputError(f"{name}: {option} must end in one of .{', .'.join(suffixes)}")
-    folder = path.parent
-    if not folder.is_dir():
-        raise InputError(f"{name}: cannot write {option}: the folder {clean(str(folder))!r} does not exist")
-    if path.is_dir():
-        raise InputError(f"{name}: cannot write {option}: that is a folder")
-    if not os.access(folder, os.W_OK):
-        raise InputError(f"{name}: cannot write {option}: the folder is not writable")
-
-
-def _plot_suffixes() -> tuple[str, ...]:
-    from matplotlib.backend_bases import FigureCanvasBase
-    supported = FigureCanvasBase.get_supported_filetypes()
-    return tuple(s for s in PLOT_SUFFIXES if s in supported)
-
-
-def _input_name(args: argparse.Namespace) -> str:
-    """The main input of the command, for the internal-error line."""
-    for key in ("file", "survey", "construction", "out"):
-        value = getattr(args, key, None)
-        if isinstance(value, Path):
-            return file_label(value)
-    return getattr(args, "command", None) or "fieldtl"
-
 
 def _frequencies(nominal_hz: Sequence[float]) -> list[float | int]:
     from fieldtl.report.export import json_number
