@@ -15,7 +15,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from fieldtl.errors import InputError
-from fieldtl.validate import CHANNEL, clean, echo, file_label
+from fieldtl.validate import CHANNEL, clean, echo, file_label, number
 
 EXIT_BAD_INPUT = 2
 MESSAGE_CHARS = 400     # longest message printed (inputs inside it are cut to 80 characters each)
@@ -47,8 +47,7 @@ def channel_index(channel: int, file: Path) -> int:
 
 def option_number(value: float, option: str, bounds: tuple[float, float], unit: str, *,
                   integer: bool = False) -> float:
-    from fieldtl import validate
-    return validate.number(value, option, low=bounds[0], high=bounds[1], unit=unit, integer=integer)
+    return number(value, option, low=bounds[0], high=bounds[1], unit=unit, integer=integer)
 
 
 def check_paths(args: argparse.Namespace) -> None:
