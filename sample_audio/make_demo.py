@@ -25,7 +25,7 @@ from scipy import signal
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run from a checkout without installing
 
-from fieldtl.audio.synthesis import calibrator_tone, impulse_response_with_decay, noise_with_band_levels  # noqa: E402
+from fieldtl.audio.synthesis import calibrator_tone, noise_with_band_levels  # noqa: E402
 from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, BandSpectrum, band_edges_hz  # noqa: E402
 from fieldtl.errors import InputError  # noqa: E402
 from fieldtl.rating.iso717 import rate_iso717_1  # noqa: E402
@@ -52,6 +52,13 @@ CALIBRATION_S = 5.0
 DECAY_S = 1.8
 DECAY_ONSET_S = 0.1
 DECAY_PEAK_TO_NOISE_DB = 55.0  # enough for T30 (45 dB) with room to spare (ISO 3382-2, from memory)
+DECAY_PEAK_DBFS = -6.0
+# The one deliberately weak take: traffic rumble during this decay leaves only WEAK_DECAY_RANGE_DB
+# of decay above the noise in the 50 and 63 Hz bands, less than T20 needs (35 dB), so those two
+# bands of this take get a finding, and the other five decays carry the room's T there.
+WEAK_DECAY = (2, 3)
+WEAK_DECAY_BANDS_HZ = (50.0, 63.0)
+WEAK_DECAY_RANGE_DB = 28.0
 SPEAKERS = (1, 2)
 MICROPHONES = (1, 2, 3, 4, 5)
 BACKGROUND_POSITIONS = (1, 2, 3)
@@ -150,6 +157,40 @@ def plain_t20_s(response: np.ndarray, nominal_hz: float, band_time_s: float) -> 
     return float(-60.0 / np.polyfit(time_s[fit], level_db[fit], 1)[0])
 
 
+def ringing_decay(reverberation_s: np.ndarray, *, seed: int, rumble: bool = False) -> np.ndarray:
+    """An invented impulse response whose decay is one straight line per band (ISO 3382-2 linear).
+
+    Each one-third-octave band rings as one damped resonance at its centre frequency, random phase,
+    energy falling 60 dB in the band's T; all bands start at the same level. A steady white noise
+    floor sits DECAY_PEAK_TO_NOISE_DB below the start in the widest band (more below in the narrow
+    ones). With ``rumble`` a low-frequency noise leaves only WEAK_DECAY_RANGE_DB above it in
+    WEAK_DECAY_BANDS_HZ. This is a simplification (a real room has many modes per band); a
+    well-measured room gives decays as straight as these once averaged, and the check of
+    straightness then has nothing to say, which is what the demo should show.
+    """
+    rng = np.random.default_rng(seed)
+    n_samples = round(DECAY_S * SAMPLE_RATE_HZ)
+    time_s = np.arange(n_samples) / SAMPLE_RATE_HZ - DECAY_ONSET_S
+    ringing = np.maximum(time_s, 0.0)
+    response = np.zeros(n_samples)
+    for nominal_hz, band_time_s in zip(BANDS_HZ, reverberation_s):
+        envelope = np.where(time_s >= 0.0, np.exp(-3.0 * np.log(10.0) * ringing / band_time_s), 0.0)
+        response += envelope * np.sin(2.0 * np.pi * nominal_hz * ringing + rng.uniform(0.0, 2.0 * np.pi))
+    start_ms = 0.5                                      # mean square of one band's unit sine at the start
+    widest_hz = np.diff(band_edges_hz(BANDS_HZ[-1]))[0]
+    floor_ms = start_ms * 10.0 ** (-DECAY_PEAK_TO_NOISE_DB / 10.0) * (SAMPLE_RATE_HZ / 2) / widest_hz
+    response += rng.normal(0.0, np.sqrt(floor_ms), n_samples)
+    if rumble:
+        low, high = band_edges_hz(WEAK_DECAY_BANDS_HZ[0])[0], band_edges_hz(WEAK_DECAY_BANDS_HZ[-1])[1]
+        spectrum_ = np.fft.rfft(rng.normal(0.0, 1.0, n_samples))      # rumble only inside these bands
+        frequency_hz = np.fft.rfftfreq(n_samples, d=1.0 / SAMPLE_RATE_HZ)
+        rumble_noise = np.fft.irfft(np.where((frequency_hz >= low) & (frequency_hz <= high), spectrum_, 0.0),
+                                    n=n_samples)
+        per_band_ms = np.mean(rumble_noise**2) / len(WEAK_DECAY_BANDS_HZ)
+        response += rumble_noise * np.sqrt(start_ms * 10.0 ** (-WEAK_DECAY_RANGE_DB / 10.0) / per_band_ms)
+    return response * 10.0 ** (DECAY_PEAK_DBFS / 20.0) / np.max(np.abs(response))
+
+
 def main(out_dir: Path = OUT_DIR) -> None:
     """Write the recordings, survey.toml and expected.json into ``out_dir``."""
     rng = np.random.default_rng(BASE_SEED)
@@ -196,16 +237,15 @@ def main(out_dir: Path = OUT_DIR) -> None:
         take(name, background_air_db + offset, recorded_db=energy_sum_db(background_air_db + offset, floor_db))
         recordings.append({"file": name, "role": "background"})
 
-    reverberation = spectrum(reverberation_s, "s", "T")
     plain_t20 = []
     for speaker, mic in DECAYS:
         name = f"ir_s{speaker}_p{mic}.flac"
-        response = impulse_response_with_decay(reverberation, sample_rate_hz=SAMPLE_RATE_HZ, duration_s=DECAY_S,
-                                               seed=next(seeds), noise_floor_db=DECAY_PEAK_TO_NOISE_DB,
-                                               onset_s=DECAY_ONSET_S)
+        weak = (speaker, mic) == WEAK_DECAY
+        response = ringing_decay(reverberation_s, seed=next(seeds), rumble=weak)
         write_pcm16_flac(out_dir / name, response)
         recorded = np.round(response / LSB) * LSB
-        plain_t20.append([plain_t20_s(recorded, f, t) for f, t in zip(BANDS_HZ, reverberation_s)])
+        plain_t20.append([np.nan if weak and f in WEAK_DECAY_BANDS_HZ else plain_t20_s(recorded, f, t)
+                          for f, t in zip(BANDS_HZ, reverberation_s)])
         recordings.append({"file": name, "role": "decay", "speaker": speaker, "method": "impulse"})
 
     tone_dbfs = CALIBRATOR_DB - FULL_SCALE_DB
@@ -217,7 +257,7 @@ def main(out_dir: Path = OUT_DIR) -> None:
     # synthetic decays really carry (their noise fine structure scatters T around the truth):
     # what an ideal analysis of these files returns. The background rule changes D wherever the
     # margin is under 10 dB, and leaves the background in where it is 10 dB or more.
-    realised_s = np.mean(plain_t20, axis=0)
+    realised_s = np.nanmean(plain_t20, axis=0)   # the weak take gives no T20 in its rumbling bands
     corrected_db, limited = background_rule(receiving_recorded_db, background_recorded_db)
     margin_db = receiving_recorded_db - background_recorded_db
     rule_d_db = source_db - corrected_db
@@ -264,8 +304,9 @@ def main(out_dir: Path = OUT_DIR) -> None:
         },
         "by_background_rule": {
             "note": ("ISO 16283-1 arithmetic on the exact recorded levels and on the T the decay files "
-                     "carry (arithmetic mean of six T20, plain scipy Butterworth and Schroeder); limited "
-                     "bands are lower bounds. An ideal analysis of the recordings reproduces these."),
+                     "carry (arithmetic mean of the decays' T20, plain scipy Butterworth and Schroeder; the "
+                     "weak decay gives none at 50 and 63 Hz); limited bands are lower bounds. An ideal "
+                     "analysis of the recordings reproduces these."),
             "reverberation_time_s": rounded(realised_s, 3),
             "receiving_level_db": rounded(corrected_db),
             "limited": [bool(v) for v in limited],
