@@ -335,15 +335,15 @@ def test_demo_truth_obeys_the_standard_identities(demo_expected):
     true = demo_expected["true"]
     geometry = demo_expected["geometry"]
     r_prime = np.array(true["apparent_sound_reduction_index_db"])
-    # DnT = R' + 10 lg(0.32 V / S) and Dn = R' + 10 lg(10 / S) (facts sheet 1.1, derived from ISO 16283-1).
+    # DnT = R' + 10 lg(0.32 V / S) and Dn = R' + 10 lg(10 / S) (derived from the ISO 16283-1 formulas with A = 0.16 V/T).
     np.testing.assert_allclose(true["standardized_level_difference_db"], r_prime + 10 * np.log10(
         0.32 * geometry["receiving_volume_m3"] / geometry["separating_area_m2"]), atol=0.011)
     np.testing.assert_allclose(true["normalized_level_difference_db"],
                                r_prime + 10 * np.log10(10 / geometry["separating_area_m2"]), atol=0.011)
     source_db = np.array(true["source_level_db"])
-    # Source-room spectrum: adjacent one-third octaves differ by at most 8 dB (ISO 16283-1, facts sheet 1.7).
+    # Source-room spectrum: adjacent one-third octaves differ by at most 8 dB (ISO 16283-1 source-room spectrum).
     assert np.max(np.abs(np.diff(source_db))) <= 8.0
-    # Background rule bands (facts sheet 1.8): margin <= 6 dB limited, 6-10 dB corrected.
+    # ISO 16283-1 background rule: margin <= 6 dB limited, 6-10 dB corrected.
     margins = np.array(demo_expected["as_recorded"]["background_margin_db"])
     assert demo_expected["by_background_rule"]["limited"] == [bool(m <= 6.0) for m in margins]
     assert "corrected" in demo_expected["as_recorded"]["background_action"]
