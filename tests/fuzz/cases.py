@@ -24,7 +24,7 @@ import soundfile
 
 from fieldtl.cli import main
 
-_LONG_ECHO = re.compile(r"(.)\1{80,}|(clap){21,}|(a[\n ]b){21,}")   # the long inputs of the cases below
+_LONG_ECHO = re.compile(r"(.)\1{80,}|(clap){21,}|(a[\n ]b){27,}")   # the long inputs of the cases below
 BANDS_HZ = (100, 125, 160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250, 1600, 2000, 2500, 3150)
 
 
