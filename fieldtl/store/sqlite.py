@@ -255,6 +255,21 @@ class Store:
             rows.touch_project(db, self._test(db, take.test_id).project_id, utc_now())
         return replace(take, channel=int(channel))
 
+    def update_take(self, take_id: int, *, role: str, speaker: int, method: str | None = None,
+                    sweep_start_hz: float | None = None, sweep_stop_hz: float | None = None,
+                    sweep_length_s: float | None = None) -> TakeRecord:
+        """Correct the take's role, position and decay method (checked as a new take's are)."""
+        fields = dict(role=role, speaker=speaker, method=method, sweep_start_hz=sweep_start_hz,
+                      sweep_stop_hz=sweep_stop_hz, sweep_length_s=sweep_length_s)
+        with self._write() as db:
+            changed = replace(self._take(db, take_id), **fields)
+            test = self._test(db, changed.test_id)
+            check_take_fields(test.setup.test_type, **rows.take_fields(changed), where=changed.original_name)
+            db.execute(f"UPDATE takes SET {', '.join(k + ' = ?' for k in fields)} WHERE id = ?",
+                       (*fields.values(), take_id))
+            rows.touch_project(db, test.project_id, utc_now())
+        return changed
+
     def delete_take(self, take_id: int) -> None:
         """Delete the take's row; its audio file may be shared by content and stays until :meth:`clean_files`."""
         with self._write() as db:
