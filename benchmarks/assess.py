@@ -20,6 +20,7 @@ import statistics
 import sys
 import time
 from pathlib import Path
+from typing import Any
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
@@ -35,8 +36,8 @@ REPEATS = 5
 DEMO = ROOT / "sample_audio" / "survey.toml"
 
 
-def run_assess(path: Path) -> str:
-    """What ``fieldtl assess <path>`` computes with its default options, as JSON text."""
+def run_assess(path: Path) -> dict[str, Any]:
+    """What ``fieldtl assess <path>`` computes with its default options, as its JSON document."""
     survey = load_survey(path)
     measured = measure_survey(survey)
     assessment = assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings,

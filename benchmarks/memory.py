@@ -5,7 +5,9 @@ written sixty times) and deleted afterwards. Each analysis runs in its own child
 reads the file with fieldtl.audio.ingest.iter_blocks and reports its own peak resident set size
 (VmHWM from /proc/self/status; ru_maxrss would carry over the parent's peak through fork and
 exec); a third child analyses one second held in memory, as the baseline of imports and filter
-design. Target: the hour under 300 MB, about the same as the minute. Linux only.
+design. Target: the hour under 300 MB, about the same as the minute. The hour is analysed twice:
+with band Leq filtered in the time domain (the default route) and by the spectral route that
+stationary takes use (``band_route="spectral"``). Linux only.
 
 Run from anywhere: ``python benchmarks/memory.py``.
 """
@@ -26,7 +28,7 @@ RATE_HZ = 48_000
 MINUTE_S = 60
 
 
-def child(path: str) -> None:
+def child(path: str, band_route: str) -> None:
     """Analyse one file (or, for "-", one second of noise in memory) and print what it cost."""
     import numpy as np
 
@@ -39,7 +41,7 @@ def child(path: str) -> None:
     else:
         recording = open_recording(path)
         result = analyse_levels(iter_blocks(recording), sample_rate_hz=recording.sample_rate_hz,
-                                total_frames=recording.frames, source_name=recording.name)
+                                total_frames=recording.frames, source_name=recording.name, band_route=band_route)
     print(json.dumps({"peak_mb": peak_rss_mb(),
                       "seconds": time.perf_counter() - start, "duration_s": result.duration_s,
                       "history_rows": int(result.history.laeq_db.size), "laeq_db": result.laeq_db}))
@@ -53,8 +55,9 @@ def peak_rss_mb() -> float:
     raise RuntimeError("no VmHWM in /proc/self/status (this benchmark needs Linux)")
 
 
-def run_child(path: str) -> dict:
-    done = subprocess.run([sys.executable, __file__, "--child", path], capture_output=True, text=True, check=True)
+def run_child(path: str, band_route: str = "filtered") -> dict:
+    done = subprocess.run([sys.executable, __file__, "--child", path, band_route], capture_output=True, text=True,
+                          check=True)
     return json.loads(done.stdout)
 
 
@@ -79,10 +82,11 @@ def main() -> None:
         baseline = run_child("-")
         minute = run_child(str(short))
         hour = run_child(str(long))
+        hour_spectral = run_child(str(long), "spectral")
     print(f"analyse_levels on 24-bit 48 kHz mono WAV read in blocks (files {sizes_mb['minute.wav']:.0f} MB "
           f"and {sizes_mb['hour.wav']:.0f} MB, deleted)")
     print(f"{'':10} {'duration':>9} {'peak RSS':>10} {'time':>8} {'history rows':>13}")
-    for name, row in (("baseline", baseline), ("1 minute", minute), ("1 hour", hour)):
+    for name, row in (("baseline", baseline), ("1 minute", minute), ("1 hour", hour), ("1 h spec.", hour_spectral)):
         print(f"{name:10} {row['duration_s']:8.0f}s {row['peak_mb']:8.1f}MB {row['seconds']:7.1f}s "
               f"{row['history_rows']:13d}")
     print(f"peak 1 h / 1 min {hour['peak_mb'] / minute['peak_mb']:.2f}x; 1 h above the baseline "
@@ -91,7 +95,7 @@ def main() -> None:
 
 
 if __name__ == "__main__":
-    if len(sys.argv) == 3 and sys.argv[1] == "--child":
-        child(sys.argv[2])
+    if len(sys.argv) == 4 and sys.argv[1] == "--child":
+        child(sys.argv[2], sys.argv[3])
     else:
         main()

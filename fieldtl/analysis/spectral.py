@@ -138,8 +138,10 @@ class SpectralBands:
         power = self._power.copy()
         power[1:-1] *= 2                         # one-sided spectrum: every bin but 0 Hz and Nyquist twice
         weights = band_power_weights(self._bank, self._segment_frames)
-        # Parseval: Σ|X_k|² over all bins = N Σ (w x)²; the squared windows sum to N/2 per segment
-        return weights @ power / (self._segment_frames * self._segments * (self._segment_frames / 2))
+        # Parseval: Σ|X_k|² over all bins = N Σ (w x)²; the squared windows sum to N/2 per segment.
+        # einsum, not a BLAS product: BLAS threads spinning after a small product slow a loaded 2-core machine.
+        total_squared_window = self._segments * self._segment_frames / 2
+        return np.einsum("bk,k->b", weights, power) / (self._segment_frames * total_squared_window)
 
     def _choose(self, segment_frames: int) -> None:
         self._segment_frames = segment_frames
