@@ -8,7 +8,7 @@ recording or pasted column) and the survey's geometry and requirement, and retur
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Literal
 
 from fieldtl.bands import BandSpectrum
@@ -314,14 +314,19 @@ def _verdict(survey: Survey, result: AirborneResult | ImpactResult, rated: tuple
                             "verdict's u is this test's own spread only and misses the between-team part",
                             "Use a requirement ISO 12999-1 covers (an ISO 717 rating) or state the uncertainty "
                             "separately."),)
-    if options.decision_rule == "guarded":
-        value_db = _precise_value(rating, term)
-    else:
-        value_db = float(rating.single_number_db + (rating.adaptation_terms_db[term] if term else 0))
+    # One number, as requirements are written: the integer rating plus the integer term (ISO 717
+    # rounds both to whole dB), the value the single-number table shows; the 0.1 dB value is given
+    # for information beside the uncertainty.
+    term_db = rating.adaptation_terms_db[term] if term else 0
+    value_db = float(rating.single_number_db + term_db)
     bound = (rating.adaptation_term_bounds.get(term) if term else rating.bound) or "exact"
     verdict = decide(requirement, value_db, combined, rule=options.decision_rule,
                      coverage_factor=options.coverage_factor, bound=bound)
-    return verdict, combined, findings
+    formed = (f"{rating.descriptor} + {term} = {rating.single_number_db} {'-' if term_db < 0 else '+'} "
+              f"{abs(term_db)} = {value_db:.0f} dB" if term else f"{rating.descriptor} = {value_db:.0f} dB")
+    rule = (f"Compared value: {formed} (the whole-dB rating{' plus the whole-dB term' if term else ''}, as "
+            f"requirements are written; to 0.1 dB it is {_precise_value(rating, term):.1f} dB). ")
+    return replace(verdict, statement=rule + verdict.statement), combined, findings
 
 
 def _precise_value(rating: Rating, term: str | None) -> float:
