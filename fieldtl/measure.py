@@ -37,10 +37,11 @@ class MeasuredSurvey:
     calibration: Calibration | None
     calibration_after: Calibration | None
     findings: tuple[Finding, ...]
+    from_meter: bool = False            # pasted band levels: a sound level meter's, calibrated by definition
 
     @property
     def calibrated(self) -> bool:
-        return self.calibration is not None
+        return self.from_meter or self.calibration is not None
 
 
 def measure_survey(survey: Survey, *, progress: Progress | None = None,
@@ -52,7 +53,7 @@ def measure_survey(survey: Survey, *, progress: Progress | None = None,
     :func:`calibrate_file`; the app passes cached versions of the same functions.
     """
     if survey.band_columns:
-        return MeasuredSurvey(takes_from_band_columns(survey.band_columns), None, None, ())
+        return MeasuredSurvey(takes_from_band_columns(survey.band_columns), None, None, (), from_meter=True)
     measure = take_measurer or measure_take
     calibrate = calibrator or calibrate_file
     spec = survey.calibration
