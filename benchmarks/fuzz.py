@@ -3,7 +3,8 @@
     .venv/bin/python benchmarks/fuzz.py [CASES] [SEED]      # default 3000 cases, seed 1
 
 Prints one line per distinct problem and ends with
-"cases <n> exit0 <n> exit2 <n> tracebacks <n> internal_errors <n> bad_messages <n> distinct_causes <n>".
+"cases <n> exit0 <n> exit2 <n> tracebacks <n> internal_errors <n> bad_messages <n> long_echoes <n>
+distinct_causes <n>" (a cause: exception type and innermost fieldtl line, or the message).
 """
 
 from __future__ import annotations
@@ -35,6 +36,7 @@ def main(count: int, seed: int) -> None:
         print(f"{problem}: {cause}  e.g. {' '.join(a[:40] for a in argv)[:200]!r}")
     print(f"cases {count} exit0 {codes[0]} exit2 {codes[2]} tracebacks {problems['traceback']} "
           f"internal_errors {problems['internal error']} bad_messages {problems['not one short line']} "
+          f"long_echoes {problems['echoes more than 80 characters of input']} "
           f"distinct_causes {len(causes)}")
 
 
