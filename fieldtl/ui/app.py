@@ -12,7 +12,8 @@ from pathlib import Path
 
 import streamlit as st
 
-from fieldtl.ui import gate
+from fieldtl.errors import FieldTLError
+from fieldtl.ui import cached, gate, state, takelist
 
 # Not named "pages": Streamlit would find a folder of that name by itself and serve each file in it.
 PAGES = Path(__file__).resolve().parent / "views"
@@ -28,11 +29,21 @@ div[data-baseweb="select"] > div, .stTextInput input, .stNumberInput input { min
 """
 
 
+def _in_store(project_id: int, test_id: int | None) -> bool:
+    """Whether the project (and, unless None, its test) is in the store."""
+    try:
+        tests = cached.store().list_tests(project_id)
+    except FieldTLError:
+        return False
+    return test_id is None or any(t.id == test_id for t in tests)
+
+
 def main() -> None:
     st.set_page_config(page_title="fieldtl", page_icon="🧱", layout="centered")
     st.markdown(_STYLE, unsafe_allow_html=True)   # our own constant CSS; no user text here
     if not gate.passed():
         gate.draw()      # the gate alone: no navigation, so no page and no page list is sent
+    state.restore(_in_store)   # only after the gate: the address opens nothing before the code
     navigation = st.navigation({
         "Site work": [
             st.Page(PAGES / "projects.py", title="Projects", icon="📁", default=True),
@@ -47,6 +58,8 @@ def main() -> None:
             st.Page(PAGES / "safety.py", title="Safety and about", icon="⚠️"),
         ],
     }, position="top")
+    if navigation.url_path != "takes":
+        takelist.finish_removals(cached.store())   # a removed take's undo lasts until the Takes page is left
     navigation.run()
 
 

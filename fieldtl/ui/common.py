@@ -9,8 +9,10 @@ from collections.abc import Iterator
 
 import streamlit as st
 
+from fieldtl.assess import Assessment
 from fieldtl.cautions import CAUTIONS
 from fieldtl.errors import FieldTLError
+from fieldtl.naming import renamed_assessment, renamed_text, take_names
 from fieldtl.store import Project, TestRecord
 from fieldtl.ui import cached, gate, state
 
@@ -76,6 +78,12 @@ ROLE_NAMES: dict[str, str] = {
     "calibration": "Calibrator tone (start)",
     "calibration_after": "Calibrator tone (end)",
 }
+
+
+def position_label(test_type: str) -> str:
+    return "Tapping-machine position" if test_type == "impact" else "Loudspeaker position"
+
+
 METHOD_NAMES: dict[str, str] = {"impulse": "Impulse (balloon, clapper, starter pistol)",
                                 "interrupted": "Noise switched off", "sweep": "Sweep played by fieldtl"}
 
@@ -112,6 +120,33 @@ def require_test() -> tuple[Project, TestRecord]:
         cautions()
         st.stop()
     return project, test
+
+
+def take_names_of(test: TestRecord) -> dict[str, str]:
+    """Stored file name → the take's name people know, for every take of the test."""
+    return take_names(cached.store().list_takes(test.id), test_type=test.setup.test_type)
+
+
+def missing_words(test: TestRecord) -> str:
+    """What the test still needs before results, in the role picker's words ("" when nothing)."""
+    missing = cached.store().missing_roles(test.id)
+    return "; ".join(ROLE_NAMES.get(role, role) for role in missing)
+
+
+def assessment_of(test: TestRecord) -> Assessment | None:
+    """The test's assessment with takes named as people know them; None (after a message) when it
+    cannot be computed yet. Errors name the take, never its storage name."""
+    still = missing_words(test)
+    if still:
+        st.warning(f"Results need at least one take of each kind. Still needed: {still}.")
+        return None
+    names = take_names_of(test)
+    try:
+        assessment = cached.assessment(cached.store().survey_for_test(test.id))
+    except FieldTLError as exc:
+        st.warning(md(renamed_text(str(exc), names)))
+        return None
+    return renamed_assessment(assessment, names)
 
 
 def heading(project: Project, test: TestRecord) -> None:

@@ -1,12 +1,12 @@
-"""Results: verdict, single numbers, chart, band table and what to redo, readable on a phone."""
+"""Results: what to redo before leaving the site, the verdict, single numbers, chart and band table."""
 
 import pandas as pd
 import streamlit as st
 
-from fieldtl.errors import FieldTLError
-from fieldtl.report.export import band_columns, grouped_findings
-from fieldtl.report.plot import assessment_figure
-from fieldtl.ui import cached, common, gate
+from fieldtl.naming import grouped_by_take
+from fieldtl.report.export import band_columns
+from fieldtl.ui import cached, chart, common, gate
+from fieldtl.ui.verdict_text import compared_value, finding_line, site_list
 
 gate.require_access()
 with common.fenced():
@@ -14,21 +14,31 @@ with common.fenced():
     project, test = common.require_test()
     st.title("Results")
     common.heading(project, test)
-    try:
-        survey = store.survey_for_test(test.id)
-        assessment = cached.assessment(survey)
-    except FieldTLError as exc:
-        st.warning(common.md(exc))
+    assessment = common.assessment_of(test)
+    if assessment is None:
         st.page_link("views/takes.py", label="Go to Takes", icon="🎙️")
         common.cautions()
         st.stop()
 
+    titles = list(common.take_names_of(test).values())
+    groups = grouped_by_take(assessment.findings, titles)
+    check_codes = {f.code for f in assessment.construction_check.findings} if assessment.construction_check else set()
+    to_redo = site_list(groups, check_codes)
+    st.subheader("Before you leave the site")
+    if to_redo:
+        for group in to_redo:
+            st.markdown(f"- {finding_line(group)}")
+    else:
+        st.success("Done: nothing to re-record. The checks found no take to redo.")
+
     verdict = assessment.verdict
+    st.subheader("Verdict")
     if verdict is not None:
         show = {"pass": st.success, "fail": st.error, "undecided": st.warning}[verdict.outcome]
-        bound = {"lower": " (lower bound)", "upper": " (upper bound)"}.get(verdict.bound, "")
-        show(f"**{verdict.outcome.upper()}** · {common.md(verdict.requirement)} · measured "
-             f"{verdict.value_db:.1f} dB{bound}, U = {verdict.expanded_uncertainty_db:.1f} dB")
+        bound = {"lower": " (a lower bound)", "upper": " (an upper bound)"}.get(verdict.bound, "")
+        formed = compared_value(assessment)
+        show(f"**{verdict.outcome.upper()}** against {common.md(verdict.requirement)}: compared value "
+             f"{common.md(formed)}{bound}, expanded uncertainty U = {verdict.expanded_uncertainty_db:.1f} dB")
         with st.expander("How this was decided"):
             st.write(common.md(verdict.statement))
     else:
@@ -40,13 +50,20 @@ with common.fenced():
         terms = rating.adaptation_terms_db
         first, second = terms.get("C", terms.get("CI")), terms.get("Ctr")
         rows.append({"Rating": rating.descriptor, "dB": rating.single_number_db,
-                     "C / CI": "" if first is None else f"{first:+d}", "Ctr": "" if second is None else f"{second:+d}",
-                     "bound": {"lower": "≥", "upper": "≤"}.get(rating.bound or "", "")})
+                     "C or CI": "" if first is None else f"{first:+d}", "Ctr": "" if second is None else f"{second:+d}",
+                     "bound": {"lower": "at least", "upper": "at most"}.get(rating.bound or "", "")})
     st.table(pd.DataFrame(rows).set_index("Rating"))   # a plain table: five short columns fit a phone
+    if verdict is not None:
+        st.caption(f"The verdict compares {common.md(compared_value(assessment))}, from this table: the whole-dB "
+                   "rating plus the whole-dB term, as requirements are written.")
     st.caption(f"Uncertainty table values: {common.md(assessment.uncertainty_note)}")
 
     st.subheader("Chart")
-    st.pyplot(assessment_figure(assessment))
+    figure = chart.rating_chart(assessment)
+    if figure is not None:
+        st.altair_chart(figure, width="stretch")
+        st.caption("Line with points: measured; dashed: the shifted reference curve; orange bars: the "
+                   "unfavourable deviations that set the rating.")
 
     st.subheader("Band values")
     columns = band_columns(assessment)
@@ -58,15 +75,9 @@ with common.fenced():
     table["limit"] = ["bound" if flag else "" for flag in assessment.result.limited]
     st.dataframe(pd.DataFrame(table), hide_index=True, height=36 * (len(table["Hz"]) + 1))
 
-    st.subheader("What to check or redo")
-    groups = grouped_findings(assessment.findings)
-    if not groups:
-        st.success("No quality findings.")
-    for finding, count, bands in groups:
-        icon = {"error": "🛑", "warning": "⚠️", "info": "ℹ️"}.get(finding.severity, "•")
-        more = f" (+{count - 1} more bands)" if count > 1 else ""
-        with st.expander(f"{icon} {finding.code.replace('_', ' ')}{more}"):
-            st.write(common.md(finding.message))
-            if finding.action:
-                st.write(f"**What to do:** {common.md(finding.action)}")
+    with st.expander(f"All findings ({len(assessment.findings)}), per take and kind"):
+        if not groups:
+            st.write("No quality findings.")
+        for group in groups:
+            st.markdown(f"- {finding_line(group, with_action=True)}")
     common.cautions()

@@ -1,0 +1,42 @@
+"""An interactive band chart for phones (Vega-Lite through Altair): text at 12 px whatever the width."""
+
+from __future__ import annotations
+
+import altair as alt
+import pandas as pd
+
+from fieldtl.assess import Assessment
+
+FONT_PX = 12          # at least 11 px on a 390 px phone: Vega-Lite draws text at this size, unscaled
+MEASURED_COLOUR = "#1b4f72"
+REFERENCE_COLOUR = "#595959"     # 7:1 on white
+DEVIATION_COLOUR = "#e67e22"
+
+
+def rating_chart(assessment: Assessment) -> alt.Chart | None:
+    """The requirement's rating (else the first): measured bands, shifted reference, unfavourable deviations."""
+    if not assessment.ratings:
+        return None
+    wanted = assessment.verdict.requirement.descriptor if assessment.verdict else None
+    index = next((i for i, r in enumerate(assessment.ratings) if r.descriptor == wanted), 0)
+    rating, spectrum = assessment.ratings[index], assessment.rated_spectra[index]
+    reference = dict(zip(rating.shifted_reference.nominal_hz, rating.shifted_reference.values))
+    deviation = dict(zip(rating.unfavourable_deviation.nominal_hz, rating.unfavourable_deviation.values))
+    limited = dict(zip(assessment.result.nominal_hz, assessment.result.limited))
+    frame = pd.DataFrame([{"band": f"{f:g}", "measured": v, "reference": reference.get(f),
+                           "deviates": bool(deviation.get(f) or 0) and v is not None,
+                           "limited": "bound (background)" if limited.get(f) else "measured"}
+                          for f, v in zip(spectrum.nominal_hz, spectrum.values)])
+    order = list(frame["band"])
+    x = alt.X("band:N", sort=order, title="one-third-octave band, Hz", axis=alt.Axis(labelAngle=-90))
+    y_title = f"{spectrum.quantity}, dB"
+    measured = alt.Chart(frame).mark_line(point=True, color=MEASURED_COLOUR).encode(
+        x=x, y=alt.Y("measured:Q", title=y_title, scale=alt.Scale(zero=False)),
+        tooltip=["band", alt.Tooltip("measured:Q", format=".1f"), alt.Tooltip("reference:Q", format=".0f"), "limited"])
+    shifted = alt.Chart(frame).mark_line(strokeDash=[6, 4], color=REFERENCE_COLOUR).encode(x=x, y="reference:Q")
+    below = alt.Chart(frame[frame["deviates"]]).mark_bar(color=DEVIATION_COLOUR, opacity=0.5).encode(
+        x=x, y="measured:Q", y2="reference:Q")
+    chart = (below + shifted + measured).properties(height=300, title=f"{rating.descriptor} = "
+                                                                     f"{rating.single_number_db} dB")
+    return chart.configure_axis(labelFontSize=FONT_PX, titleFontSize=FONT_PX).configure_title(
+        fontSize=FONT_PX, limit=360).configure_legend(labelFontSize=FONT_PX)

@@ -1,0 +1,53 @@
+"""Words the Results page shows: the verdict's compared value and one line per group of findings."""
+
+from __future__ import annotations
+
+from collections.abc import Collection, Sequence
+
+from fieldtl.assess import Assessment
+from fieldtl.naming import FindingGroup
+from fieldtl.report.export import json_number
+from fieldtl.ui import common
+
+SEVERITY_WORDS = {"error": "Error", "warning": "Check", "info": "Note"}
+
+
+def compared_value(assessment: Assessment) -> str:
+    """"DnT,w + Ctr = 54 + (-4) = 50 dB": the verdict's number formed from the single-number table."""
+    verdict = assessment.verdict
+    if verdict is None:
+        return ""
+    requirement = verdict.requirement
+    rating = assessment.rating(requirement.descriptor)
+    term = requirement.adaptation_term
+    if rating is None:
+        return f"{verdict.value_db:.0f} dB"
+    if term is None:
+        return f"{rating.descriptor} = {rating.single_number_db} dB"
+    term_db = rating.adaptation_terms_db[term]
+    sign = "-" if term_db < 0 else "+"       # as the verdict statement writes it (fieldtl.assess)
+    return (f"{rating.descriptor} + {term} = {rating.single_number_db} {sign} {abs(term_db)} = "
+            f"{rating.single_number_db + term_db} dB")
+
+
+def site_list(groups: Sequence[FindingGroup], not_on_site: Collection[str]) -> list[FindingGroup]:
+    """Groups a tester can still act on before leaving: errors and warnings with an action, except
+    the construction check's notes (about the element, not the measurement)."""
+    return [g for g in groups if g.first.severity in ("error", "warning") and g.first.action
+            and g.first.code not in not_on_site]
+
+
+def finding_line(group: FindingGroup, *, with_action: bool = True) -> str:
+    """One markdown line: severity in words, the take (bold), what was seen, the bands, what to do."""
+    finding = group.first
+    message = finding.message
+    if group.take is not None:
+        message = message[len(group.take):].lstrip(" ,:")
+    if len(group.bands_hz) > 1:
+        message += f" (the same in {len(group.bands_hz) - 1} more band{'s' if len(group.bands_hz) > 2 else ''}: " \
+                   + ", ".join(f"{json_number(b)}" for b in group.bands_hz[1:]) + " Hz)"
+    where = f"**{common.md(group.take)}**: " if group.take else ""
+    line = f"{SEVERITY_WORDS.get(finding.severity, 'Note')}: {where}{common.md(message)}"
+    if with_action and finding.action:
+        line += f" *What to do:* {common.md(finding.action)}"
+    return line
