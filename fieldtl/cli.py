@@ -236,14 +236,14 @@ def _run_assess(args: argparse.Namespace) -> int:
 
 def _assess_and_report(survey: Any, *, json_path: Path | None, csv_path: Path | None, plot_path: Path | None,
                        decision: str = "guarded", speaker_rule: str = "energy") -> int:
-    from fieldtl.assess import AssessOptions, assess
-    from fieldtl.measure import measure_survey
+    from fieldtl.assess import AssessOptions
     from fieldtl.report.export import assessment_to_csv, assessment_to_json, assessment_to_text
+    from fieldtl.testrun import assess_survey, user_cache
 
-    with _progress_bar(survey.source_name, math.inf) as progress:
-        measured = measure_survey(survey, progress=progress)
-    assessment = assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings,
-                        options=AssessOptions(decision_rule=decision, source_combination=speaker_rule))
+    # The app's path: takes measured before (same audio, same settings) are read from the user's store.
+    with _progress_bar(survey.source_name, math.inf) as progress, user_cache() as cache:
+        assessment = assess_survey(survey, cache=cache, progress=progress,
+                                   options=AssessOptions(decision_rule=decision, source_combination=speaker_rule))
     print(assessment_to_text(assessment))
     if json_path:
         _write_json(json_path, assessment_to_json(assessment))

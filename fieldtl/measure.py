@@ -2,6 +2,10 @@
 
 Each recording is read once, block by block: the same blocks feed the signal-facts watcher
 (clipping, silence, DC) and the band-level analysis. Decays are analysed whole (they are short).
+
+The analysis modules (and with them scipy.signal, about a second to import) are imported where a
+recording is analysed, so a run whose takes are all measured already (fieldtl.testrun) never
+loads them.
 """
 
 from __future__ import annotations
@@ -9,21 +13,25 @@ from __future__ import annotations
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from fieldtl.analysis.decay import DecayAnalysis, reverberation_from_impulse_response, reverberation_from_sweep
-from fieldtl.analysis.interrupted import reverberation_from_interrupted_noise
-from fieldtl.analysis.levels import LevelAnalysis, analyse_levels
-from fieldtl.audio.calibration import Calibration, calibration_drift, calibration_from_tone
-from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording, read_samples
-from fieldtl.audio.signals import SweepSpec
 from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, Fraction
 from fieldtl.errors import InputError
 from fieldtl.findings import Finding
 from fieldtl.qa import TakeSummary
 from fieldtl.survey import BandColumn, Survey, TakeSpec
 
+if TYPE_CHECKING:
+    from fieldtl.analysis.decay import DecayAnalysis
+    from fieldtl.analysis.levels import LevelAnalysis
+    from fieldtl.audio.calibration import Calibration
+    from fieldtl.audio.signals import SweepSpec
+
+# Bump when a change to the analysis changes what any take measures (band levels, decays, their
+# findings): every stored measurement of another version is then measured again (fieldtl.testrun).
+ANALYSIS_VERSION = 1
 FIELD_RANGE_HZ = (50.0, 5000.0)                 # ISO 16283-1/-2 bands with the optional extensions
 Progress = Callable[[str, float], None]         # (take name, fraction of that take done)
 TakeMeasurer = Callable[..., tuple[TakeSummary, tuple[Finding, ...]]]   # measure_take's signature
@@ -64,6 +72,7 @@ def measure_survey(survey: Survey, *, progress: Progress | None = None,
         if cal is not None:
             findings += cal.findings
     if calibration is not None and after is not None:
+        from fieldtl.audio.calibration import calibration_drift
         findings += calibration_drift(calibration, after)[1]
     offset_db = 0.0 if calibration is None else calibration.offset_db
     takes = []
@@ -77,6 +86,9 @@ def measure_survey(survey: Survey, *, progress: Progress | None = None,
 def measure_take(spec: TakeSpec, *, level_offset_db: float,
                  progress: Progress | None = None) -> tuple[TakeSummary, tuple[Finding, ...]]:
     """Band levels (level roles) or reverberation times (decays) of one recording."""
+    from fieldtl.analysis.levels import analyse_levels
+    from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording, read_samples
+
     recording = open_recording(spec.file, channel=spec.channel)
     name = recording.name
     stats = SampleStats(sample_rate_hz=recording.sample_rate_hz, source_name=name)
@@ -105,6 +117,9 @@ def analyse_decay(samples: np.ndarray, *, sample_rate_hz: float, spec: TakeSpec,
                   nominal_hz: Sequence[float] | None = THIRD_OCTAVES_50_5000_HZ,
                   fraction: Fraction = 3) -> DecayAnalysis:
     """T20/T30/EDT per band (default one-third octaves 50-5000 Hz) by the take's method."""
+    from fieldtl.analysis.decay import reverberation_from_impulse_response, reverberation_from_sweep
+    from fieldtl.analysis.interrupted import reverberation_from_interrupted_noise
+
     options = dict(sample_rate_hz=sample_rate_hz, nominal_hz=nominal_hz, fraction=fraction, source_name=source_name)
     if spec.method == "impulse":
         return reverberation_from_impulse_response(samples, **options)
@@ -126,6 +141,8 @@ def octave_63_t20_s(samples: np.ndarray, *, sample_rate_hz: float, spec: TakeSpe
 
 def sweep_from_spec(spec: TakeSpec, *, sample_rate_hz: float, source_name: str) -> SweepSpec:
     """The sweep that was played, from the survey's sweep_* keys (all three are needed)."""
+    from fieldtl.audio.signals import SweepSpec
+
     if spec.sweep_length_s is None or spec.sweep_start_hz is None or spec.sweep_stop_hz is None:
         raise InputError(f"{source_name}: a sweep decay needs sweep_start_hz, sweep_stop_hz and sweep_length_s "
                          "(the sweep that was played)")
@@ -143,6 +160,9 @@ def takes_from_band_columns(columns: Sequence[BandColumn]) -> tuple[TakeSummary,
 
 def calibrate_file(file: Path, channel: int, reference_db: float) -> Calibration:
     """Calibration from a calibrator recording (the whole file is one tone take)."""
+    from fieldtl.audio.calibration import calibration_from_tone
+    from fieldtl.audio.ingest import open_recording, read_samples
+
     recording = open_recording(file, channel=channel)
     return calibration_from_tone(read_samples(recording), sample_rate_hz=recording.sample_rate_hz,
                                  source_name=recording.name, reference_db=reference_db)

@@ -62,3 +62,10 @@ def chromium_path() -> str:
         reference_missing("chromium is not installed (scripts/test installs Debian's chromium package)")
     import_reference("playwright.sync_api")
     return path
+
+
+@pytest.fixture(autouse=True)
+def own_data_dir(monkeypatch, tmp_path_factory):
+    """Each test its own fieldtl data folder: `fieldtl assess` keeps take measurements in the user's
+    store, and no test may read what another measured, nor write to the real user's folder."""
+    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path_factory.mktemp("fieldtl-data")))

@@ -91,13 +91,13 @@ def test_a_second_migration_is_one_more_function(tmp_path, monkeypatch):
     database = tmp_path / "fieldtl.sqlite3"
     Store.open(database).close()
 
-    def m0002_add_notes(connection):
+    def m9999_add_notes(connection):
         connection.execute("ALTER TABLE projects ADD COLUMN notes TEXT NOT NULL DEFAULT ''")
 
-    monkeypatch.setattr(schema, "MIGRATIONS", MIGRATIONS + (m0002_add_notes,))
+    monkeypatch.setattr(schema, "MIGRATIONS", MIGRATIONS + (m9999_add_notes,))
     with Store.open(database) as upgraded:
-        assert upgraded.applied_migrations == ("m0002_add_notes",)
-        assert upgraded.schema_state() == (2, NAMES + ("m0002_add_notes",))
+        assert upgraded.applied_migrations == ("m9999_add_notes",)
+        assert upgraded.schema_state() == (SCHEMA_VERSION + 1, NAMES + ("m9999_add_notes",))
     monkeypatch.setattr(schema, "MIGRATIONS", MIGRATIONS)
     with pytest.raises(StoreError, match="do not match this version"):
         Store.open(database)

@@ -11,9 +11,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import signal
 
-from fieldtl.analysis.filterbank import band_sos
 from fieldtl.errors import CalibrationError, InputError
 from fieldtl.findings import Finding
 
@@ -64,6 +62,10 @@ def calibration_from_tone(samples: np.ndarray, *, sample_rate_hz: float, source_
     if abs(frequency_hz / CALIBRATOR_FREQUENCY_HZ - 1.0) > FREQUENCY_TOLERANCE:
         raise CalibrationError(f"{source_name}: strongest tone is at {frequency_hz:.0f} Hz, expected a "
                                f"calibrator tone near {CALIBRATOR_FREQUENCY_HZ:.0f} Hz")
+    from scipy import signal          # here, not above: the drift check alone needs no filters (fast cached runs)
+
+    from fieldtl.analysis.filterbank import band_sos
+
     sos = band_sos(CALIBRATOR_FREQUENCY_HZ, sample_rate_hz=sample_rate_hz)
     # Filter from the raw start so the band filter has settled before the steady part begins.
     band = signal.sosfilt(sos, np.asarray(samples, dtype=float))[start:]

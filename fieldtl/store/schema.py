@@ -289,7 +289,24 @@ def m0001_create_tables(connection: sqlite3.Connection) -> None:
         connection.execute(statement)
 
 
-MIGRATIONS: tuple[Migration, ...] = (m0001_create_tables,)
+def m0002_take_measurements(connection: sqlite3.Connection) -> None:
+    """What each take's audio measured, keyed by its content and analysis settings (fieldtl.testrun).
+
+    ``key`` digests the audio's SHA-256, the settings and the analysis version; a row is never
+    tied to a take (two takes of the same audio with the same settings share it), so deleting a
+    take leaves it, and :meth:`Store.clean_files` removes rows of other analysis versions.
+    """
+    connection.execute("""CREATE TABLE take_measurements (
+            key TEXT PRIMARY KEY CHECK (length(key) = 64),
+            sha256 TEXT NOT NULL CHECK (length(sha256) = 64),
+            analysis_version TEXT NOT NULL,
+            settings TEXT NOT NULL CHECK (json_valid(settings)),
+            measurement TEXT NOT NULL CHECK (json_valid(measurement)),
+            created_at TEXT NOT NULL)""")
+    connection.execute("CREATE INDEX take_measurements_sha256 ON take_measurements(sha256)")
+
+
+MIGRATIONS: tuple[Migration, ...] = (m0001_create_tables, m0002_take_measurements)
 SCHEMA_VERSION = len(MIGRATIONS)
 
 

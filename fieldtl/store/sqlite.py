@@ -25,6 +25,7 @@ from fieldtl.store import rows
 from fieldtl.store.connection import Database
 from fieldtl.store.files import (STALE_INCOMING_S, WHOLE_READ_ROLES, check_audio_file, incoming_name,
                                  leftover_files, place_file, write_durably)
+from fieldtl.store.measurements import MeasurementRows
 from fieldtl.store.schema import (Project, ProjectSnapshot, TakeRecord, TestRecord, TestSetup, check_project_texts,
                                   check_recording_name, check_take_fields, utc_now)
 from fieldtl.store.survey_view import check_snapshot, check_test_texts, missing_roles, survey_from_records
@@ -48,6 +49,7 @@ class Store:
         self.audio_dir = audio_dir
         self.max_take_bytes = max_take_bytes
         self.applied_migrations = database.applied_migrations   # applied when this Store opened the database
+        self.measurements = MeasurementRows(database)      # take measurements by content (fieldtl.testrun)
 
     @classmethod
     def open(cls, path: str | Path, *, audio_dir: Path | None = None,

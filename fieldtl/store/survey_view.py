@@ -21,8 +21,8 @@ from fieldtl.survey import (REQUIRED_ROLES, ROLES_BY_TYPE, BandColumn, Calibrati
                             read_band_levels_csv)
 from fieldtl.validate import echo
 
-__all__ = ["CONSTRUCTION_SETTING", "band_columns", "check_snapshot", "check_test_texts", "declared_construction", "missing_roles",
-           "survey_from_records"]
+__all__ = ["CONSTRUCTION_SETTING", "band_columns", "calibration_spec", "check_snapshot", "check_test_texts",
+           "declared_construction", "missing_roles", "survey_from_records", "take_spec"]
 
 
 def declared_construction(setup: TestSetup, where: str) -> Construction | None:
@@ -105,24 +105,31 @@ def survey_from_records(test: TestRecord, takes: tuple[TakeRecord, ...],
     if missing:
         raise InputError(f"{where}: no included take with role {', '.join(missing)} "
                          f"(an {setup.test_type} test needs {', '.join(REQUIRED_ROLES[setup.test_type])})")
-    specs = tuple(TakeSpec(file=path_of(t), role=t.role,  # type: ignore[arg-type]
-                           speaker=t.speaker, channel=t.channel, method=t.method,
-                           **{k: getattr(t, k) for k in SWEEP_KEYS})
-                  for t in takes if t.role not in ("calibration", "calibration_after"))
+    specs = tuple(take_spec(t, path_of(t)) for t in takes if t.role not in ("calibration", "calibration_after"))
     return Survey(title=setup.title, test_type=setup.test_type,  # type: ignore[arg-type]
                   geometry=Geometry(receiving_volume_m3=setup.receiving_volume_m3,
                                     separating_area_m2=setup.separating_area_m2,
                                     source_volume_m3=setup.source_volume_m3),
                   source_name=setup.title, takes=specs,
                   band_columns=band_columns(setup, test.band_levels_csv, where),
-                  calibration=_calibration(takes, setup, where, path_of), requirement=setup.requirement,
+                  calibration=calibration_spec(test, takes, path_of), requirement=setup.requirement,
                   construction=setup.construction or None, uncertainty_situation=setup.uncertainty_situation,
                   element_lab_rw_db=setup.element_lab_rw_db,
                   declared_construction=declared_construction(setup, where))
 
 
-def _calibration(takes: tuple[TakeRecord, ...], setup: TestSetup, where: str,
-                 path_of: Callable[[TakeRecord], Path]) -> CalibrationSpec | None:
+def take_spec(take: TakeRecord, path: Path) -> TakeSpec:
+    """What the calculator needs to measure a stored (non-calibration) take whose audio is at ``path``."""
+    return TakeSpec(file=path, role=take.role, speaker=take.speaker, channel=take.channel,  # type: ignore[arg-type]
+                    method=take.method, **{k: getattr(take, k) for k in SWEEP_KEYS})
+
+
+def calibration_spec(test: TestRecord, takes: tuple[TakeRecord, ...],
+                     path_of: Callable[[TakeRecord], Path]) -> CalibrationSpec | None:
+    """The test's calibrator takes among its included ``takes``: at most one of each kind, on one
+    channel, the end check only with a start one (InputError naming the test otherwise)."""
+    setup, where = test.setup, f"test {echo(test.setup.title)}"
+    takes = tuple(t for t in takes if not t.excluded)
     before = [t for t in takes if t.role == "calibration"]
     after = [t for t in takes if t.role == "calibration_after"]
     for role, found in (("calibration", before), ("calibration_after", after)):

@@ -1,0 +1,160 @@
+"""One path for a test, shared by ``fieldtl assess``, the app and the benchmarks: takes → each take
+measured once → assessment.
+
+A survey (read from a survey file, or a stored test through :meth:`Store.survey_for_test`) is measured
+take by take with :mod:`fieldtl.measure`; with a :class:`MeasurementCache` every take's band levels or
+decay, and its findings, are kept in a store's ``take_measurements`` table under a key made of the
+audio's SHA-256, the settings its analysis depends on and the analysis version (see
+:mod:`fieldtl.measure_cache`). Later runs, other pages, the report and a restarted app read them
+back instead of measuring again; a new take costs only its own analysis.
+
+:func:`measure_test_takes` is what the Takes page shows of every take (left-out ones too), with
+the calibration chosen by the store's rule (at most one included calibrator take of each kind).
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable, Iterator, Mapping
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+from fieldtl.assess import Assessment, AssessOptions, assess
+from fieldtl.errors import FieldTLError, StoreError
+from fieldtl.findings import Finding
+from fieldtl.measure import MeasuredSurvey, Progress, measure_survey
+from fieldtl.measure_cache import MeasurementCache
+from fieldtl.qa import TakeSummary
+from fieldtl.survey import Survey
+
+if TYPE_CHECKING:
+    from fieldtl.audio.calibration import Calibration
+    from fieldtl.store import Store, TakeRecord
+
+TakesDone = Callable[[int, int], None]      # (takes measured so far, takes to measure)
+
+__all__ = ["MeasurementCache", "TakeOutcome", "TestTakes", "assess_survey", "assess_test", "measure_test",
+           "measure_test_takes", "store_cache"]
+
+
+def assess_survey(survey: Survey, *, cache: MeasurementCache | None = None, options: AssessOptions = AssessOptions(),
+                  progress: Progress | None = None) -> Assessment:
+    """Measure the survey's takes (through ``cache`` if given) and assess the test."""
+    measured = measure_with(survey, cache=cache, progress=progress)
+    return assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings, options=options)
+
+
+def measure_with(survey: Survey, *, cache: MeasurementCache | None, progress: Progress | None = None) -> MeasuredSurvey:
+    if cache is None:
+        return measure_survey(survey, progress=progress)
+    return measure_survey(survey, progress=progress, take_measurer=cache.take, calibrator=cache.calibration)
+
+
+def store_cache(store: Store, takes: tuple[TakeRecord, ...] = ()) -> MeasurementCache:
+    """The store's measurement cache, knowing the content hash of ``takes`` (others are hashed when read)."""
+    return MeasurementCache(store.measurements, hashes={store.take_path(t): t.sha256 for t in takes})
+
+
+@contextmanager
+def user_cache() -> Iterator[MeasurementCache | None]:
+    """The measurement cache of the user's own store (the app's), for ``fieldtl assess``.
+
+    None when FIELDTL_NO_CACHE is set or the store cannot be opened (read-only folder, made by a
+    newer fieldtl): the takes are then measured afresh, with the same results.
+    """
+    if os.environ.get("FIELDTL_NO_CACHE"):
+        yield None
+        return
+    from fieldtl.store import Store, default_database_path
+
+    try:
+        store = Store.open(default_database_path())
+    except (StoreError, OSError):
+        yield None
+        return
+    try:
+        yield store_cache(store)
+    finally:
+        store.close()
+
+
+def measure_test(store: Store, test_id: int, *, progress: Progress | None = None) -> MeasuredSurvey:
+    """Every included take of a stored test measured (or read from the store's measurements)."""
+    survey = store.survey_for_test(test_id)
+    return measure_with(survey, cache=store_cache(store, store.list_takes(test_id)), progress=progress)
+
+
+def assess_test(store: Store, test_id: int, *, options: AssessOptions = AssessOptions(),
+                progress: Progress | None = None) -> Assessment:
+    """The assessment of a stored test: its included takes, the store's calibration rule, its setup.
+
+    Findings and take labels name the stored audio files (content names); the app shows them with
+    the names people know (:func:`fieldtl.naming.renamed_assessment`).
+    """
+    survey = store.survey_for_test(test_id)
+    cache = store_cache(store, store.list_takes(test_id))
+    return assess_survey(survey, cache=cache, options=options, progress=progress)
+
+
+@dataclass(frozen=True, slots=True)
+class TakeOutcome:
+    """What one take measured, or the one-line reason it could not be measured."""
+
+    summary: TakeSummary | None
+    findings: tuple[Finding, ...] = ()
+    problem: str | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class TestTakes:
+    """Every non-calibration take of a test measured, by take id, and the calibration used for them."""
+
+    __test__ = False
+
+    calibration: Calibration | None
+    calibration_problem: str | None          # two included calibrator takes of a kind, a bad tone ...
+    outcomes: Mapping[int, TakeOutcome] = field(default_factory=dict, hash=False)
+
+    @property
+    def offset_db(self) -> float:
+        return 0.0 if self.calibration is None else self.calibration.offset_db
+
+
+def measure_test_takes(store: Store, test_id: int, *, on_take: TakesDone | None = None) -> TestTakes:
+    """Each take of the test (left-out ones too) measured with the test's calibration.
+
+    The calibration is the one the assessment uses (:func:`fieldtl.store.survey_view.calibration_spec`):
+    when the store refuses it (two included calibrator takes of one kind, different channels) or the
+    tone is unusable, the takes are measured uncalibrated and ``calibration_problem`` says why.
+    The end-of-session calibrator take is measured too, so the assessment finds it ready.
+    """
+    from fieldtl.store.survey_view import calibration_spec, take_spec
+
+    test = store.get_test(test_id)
+    takes = store.list_takes(test_id)
+    cache = store_cache(store, takes)
+    level_takes = [t for t in takes if t.role not in ("calibration", "calibration_after")]
+    total = len(level_takes)
+    calibration, problem = None, None
+    try:
+        spec = calibration_spec(test, takes, store.take_path)
+        if spec is not None:
+            calibration = cache.calibration(spec.file, spec.channel, spec.reference_db)
+            if spec.file_after is not None:
+                cache.calibration(spec.file_after, spec.channel, spec.reference_db)
+    except FieldTLError as exc:
+        problem = str(exc)
+    offset_db = 0.0 if calibration is None else calibration.offset_db
+    outcomes: dict[int, TakeOutcome] = {}
+    for done, take in enumerate(level_takes, start=1):
+        try:
+            summary, findings = cache.take(take_spec(take, store.take_path(take)), level_offset_db=offset_db)
+        except FieldTLError as exc:
+            outcomes[take.id] = TakeOutcome(None, (), str(exc))
+        else:
+            outcomes[take.id] = TakeOutcome(summary, findings)
+        if on_take is not None:
+            on_take(done, total)
+    return TestTakes(calibration, problem, outcomes)
+
