@@ -72,15 +72,19 @@ def _id_param(name: str) -> int | None:
 
 
 def restore(test_exists: Callable[[int, int | None], bool]) -> None:
-    """Open the project and test the address names (or, on a fresh visit, the last test used).
+    """On a session's first run past the gate, open the project and test the address names (or,
+    without one, the last test used); on every run, put the open ones into the address.
 
     ``test_exists(project_id, test_id)`` says whether the project (and the test, unless None) is
     in the store; an address naming anything else is ignored. Call only after the access gate.
     """
-    wanted_project, wanted_test = _id_param(PROJECT_PARAM), _id_param(TEST_PARAM)
-    if wanted_project is None and not st.session_state.get(RESTORED) and project_id() is None:
-        wanted_project, wanted_test = _last_used()
+    if st.session_state.get(RESTORED):       # later runs: the session is the truth, the address follows it
+        write_address()
+        return
     st.session_state[RESTORED] = True
+    wanted_project, wanted_test = _id_param(PROJECT_PARAM), _id_param(TEST_PARAM)
+    if wanted_project is None and project_id() is None:
+        wanted_project, wanted_test = _last_used()
     if wanted_project is not None and (wanted_project, wanted_test) != (project_id(), test_id()):
         if test_exists(wanted_project, wanted_test):
             st.session_state[PROJECT_ID], st.session_state[TEST_ID] = wanted_project, wanted_test
