@@ -136,6 +136,8 @@ def measure_test_takes(store: Store, test_id: int, *, on_take: TakesDone | None 
     cache = store_cache(store, takes)
     level_takes = [t for t in takes if t.role not in ("calibration", "calibration_after")]
     total = len(level_takes)
+    if on_take is not None:
+        on_take(0, total)
     calibration, problem = None, None
     try:
         spec = calibration_spec(test, takes, store.take_path)
@@ -158,3 +160,80 @@ def measure_test_takes(store: Store, test_id: int, *, on_take: TakesDone | None 
             on_take(done, total)
     return TestTakes(calibration, problem, outcomes)
 
+
+
+class BackgroundMeasurer:
+    """Measures stored tests' takes in one background thread, so pages appear while it works.
+
+    :meth:`request` queues tests (the app queues every test when it starts); :meth:`prioritise`
+    moves the test a page needs to the front; :meth:`pending` is ``(takes done, takes to measure)``
+    while the test is queued or being measured, and None once its takes are in the store. What the
+    thread measures lands in the store's measurements, where :func:`measure_test_takes` and
+    :func:`assess_test` read it; a take that cannot be measured is left for the page to report.
+    """
+
+    def __init__(self, store: Store, *, every_test: bool = False) -> None:
+        """Start the thread; with ``every_test`` it first queues every stored test (read in the thread,
+        so a project whose rows cannot be read delays nothing and only its own pages say so)."""
+        import threading
+
+        self._store = store
+        self._queue: list[int] = []
+        self._status: dict[int, tuple[int, int]] = {}
+        self._wake = threading.Condition()
+        self._thread = threading.Thread(target=self._run, args=(every_test,), name="fieldtl-measure", daemon=True)
+        self._thread.start()
+
+    def request(self, *test_ids: int) -> None:
+        with self._wake:
+            for test_id in test_ids:
+                if test_id not in self._status:
+                    self._queue.append(test_id)
+                    self._status[test_id] = (0, 0)
+            self._wake.notify()
+
+    def prioritise(self, test_id: int) -> None:
+        with self._wake:
+            if test_id in self._queue:
+                self._queue.remove(test_id)
+                self._queue.insert(0, test_id)
+
+    def pending(self, test_id: int) -> tuple[int, int] | None:
+        with self._wake:
+            return self._status.get(test_id)
+
+    def idle(self) -> bool:
+        """Nothing queued or being measured."""
+        with self._wake:
+            return not self._status
+
+    def _queue_every_test(self) -> None:
+        for project in self._store.list_projects():
+            try:
+                self.request(*(t.id for t in self._store.list_tests(project.id)))
+            except Exception:  # noqa: BLE001, S112 - that project's pages report it; the others go on
+                continue
+
+    def _run(self, every_test: bool) -> None:
+        if every_test:
+            try:
+                self._queue_every_test()
+            except Exception:  # noqa: BLE001 - a store that cannot be listed: pages measure on demand
+                pass
+        while True:
+            with self._wake:
+                while not self._queue:
+                    self._wake.wait()
+                test_id = self._queue.pop(0)
+
+            def done(count: int, total: int, test_id: int = test_id) -> None:
+                with self._wake:
+                    self._status[test_id] = (count, total)
+
+            try:
+                measure_test_takes(self._store, test_id, on_take=done)
+            except Exception:  # noqa: BLE001 - the page measures again and reports the problem in one line
+                pass
+            finally:
+                with self._wake:
+                    self._status.pop(test_id, None)

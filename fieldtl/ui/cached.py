@@ -1,4 +1,8 @@
-"""The only file with cache decorators: cached wrappers around core calls, and the store handle."""
+"""The only file with cache decorators: the store handle, its background measurer, and cached core calls.
+
+Take measurements are kept in the store (fieldtl.testrun), so they survive a restart; the
+assessment on top of them is cheap and also cached per server process here.
+"""
 
 from __future__ import annotations
 
@@ -7,49 +11,47 @@ from pathlib import Path
 
 import streamlit as st
 
-from fieldtl.assess import Assessment, assess
-from fieldtl.audio.calibration import Calibration
-from fieldtl.findings import Finding
-from fieldtl.measure import calibrate_file, measure_survey, measure_take
-from fieldtl.qa import TakeSummary
+from fieldtl.assess import Assessment
+from fieldtl.measure_cache import analysis_version
 from fieldtl.store import Store, default_database_path
 from fieldtl.store.survey_import import import_survey
-from fieldtl.survey import Survey, TakeSpec, load_survey
+from fieldtl.survey import Survey, load_survey
+from fieldtl.testrun import BackgroundMeasurer, TestTakes, assess_survey, measure_test_takes, store_cache
 
 DEMO_SURVEY = Path(__file__).resolve().parents[2] / "sample_audio" / "survey.toml"
 DEMO_PROJECT = "Invented demo: Brackenfold House (a fictional building)"
 
 
 @st.cache_resource
-def store() -> Store:
-    """One store handle per server process (the Store serialises its connection with a lock)."""
+def _opened() -> tuple[Store, BackgroundMeasurer]:
+    """One store handle per server process (the Store serialises its connection with a lock), and
+    one background thread measuring every stored test's takes, most recently changed project first."""
     path = default_database_path()
     path.parent.mkdir(parents=True, exist_ok=True)
     handle = Store.open(path)
     handle.clean_files()          # orphan audio and stale .incoming-*/.part leftovers of earlier runs
+    handle.measurements.forget_other_versions(analysis_version())
     if not handle.list_projects() and DEMO_SURVEY.is_file() and not os.environ.get("FIELDTL_NO_DEMO"):
         project = handle.create_project(DEMO_PROJECT, client="Invented client (demo data)",
                                         address="Invented address, not a real place", engineer="Demo")
         import_survey(handle, load_survey(DEMO_SURVEY), project_id=project.id)
-    return handle
+    return handle, BackgroundMeasurer(handle, every_test=True)
 
 
-@st.cache_data(max_entries=512, show_spinner=False)
-def take_measurement(spec: TakeSpec, level_offset_db: float) -> tuple[TakeSummary, tuple[Finding, ...]]:
-    """Band levels or decay of one stored take (files are content-addressed, so the path is the content)."""
-    return measure_take(spec, level_offset_db=level_offset_db)
+def store() -> Store:
+    return _opened()[0]
 
 
-@st.cache_data(max_entries=64, show_spinner=False)
-def calibration(file: Path, channel: int, reference_db: float) -> Calibration:
-    return calibrate_file(file, channel, reference_db)
+def measurer() -> BackgroundMeasurer:
+    return _opened()[1]
 
 
-def _measure_take(spec: TakeSpec, *, level_offset_db: float, progress: object = None) -> tuple[TakeSummary, tuple[Finding, ...]]:
-    return take_measurement(spec, level_offset_db)
+def measured_takes(test_id: int) -> TestTakes:
+    """Every take of the test measured (read from the store; a new take is measured now and kept)."""
+    return measure_test_takes(store(), test_id)
 
 
 @st.cache_data(max_entries=32, show_spinner="Analysing the takes…")
 def assessment(survey: Survey) -> Assessment:
-    measured = measure_survey(survey, take_measurer=_measure_take, calibrator=calibration)
-    return assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings)
+    """The core path of `fieldtl assess` on a stored test's survey (files are content-addressed)."""
+    return assess_survey(survey, cache=store_cache(store()))

@@ -10,8 +10,7 @@ from fieldtl.checklist import background_level_db, describe_take
 from fieldtl.errors import FieldTLError
 from fieldtl.naming import renamed_text
 from fieldtl.store import Store, TakeRecord, TestRecord
-from fieldtl.survey import TakeSpec
-from fieldtl.ui import cached, common, takelist
+from fieldtl.ui import cached, common, progress, takelist
 
 
 def draw(store: Store, test: TestRecord, takes: Sequence[TakeRecord], titles: Mapping[int, str],
@@ -33,26 +32,15 @@ def draw(store: Store, test: TestRecord, takes: Sequence[TakeRecord], titles: Ma
                 store.set_take_excluded(take_id, was_excluded)
                 pending.pop(take_id)
                 st.rerun()
-    calibration_take = next((t for t in included if t.role == "calibration"), None)
-    offset_db = 0.0
-    if calibration_take is not None:
-        try:
-            offset_db = cached.calibration(store.take_path(calibration_take), calibration_take.channel,
-                                           setup.calibrator_db).offset_db
-        except FieldTLError as exc:
-            st.error(common.md(renamed_text(str(exc), names)))
-    summaries: dict[int, object] = {}
+    progress.wait_until_measured(test.id)
     with st.spinner("Reading the takes…"):
-        for take in takes:
-            if take.role in ("calibration", "calibration_after"):
-                continue
-            spec = TakeSpec(file=store.take_path(take), role=take.role, speaker=take.speaker, channel=take.channel,
-                            method=take.method, sweep_start_hz=take.sweep_start_hz, sweep_stop_hz=take.sweep_stop_hz,
-                            sweep_length_s=take.sweep_length_s)
-            try:
-                summaries[take.id] = cached.take_measurement(spec, offset_db)
-            except FieldTLError as exc:
-                summaries[take.id] = exc
+        measured = cached.measured_takes(test.id)      # the store's calibration rule, each take measured once
+    if measured.calibration_problem:
+        st.error(common.md(renamed_text(measured.calibration_problem, names)))
+    offset_db = measured.offset_db
+    calibrated = measured.calibration is not None
+    summaries: dict[int, object] = {take_id: FieldTLError(o.problem) if o.summary is None else (o.summary, o.findings)
+                                    for take_id, o in measured.outcomes.items()}
     background = background_level_db([summaries[t.id][0] for t in included if isinstance(summaries.get(t.id), tuple)])
     for take in reversed(takes):
         with st.container(border=True):
@@ -63,8 +51,8 @@ def draw(store: Store, test: TestRecord, takes: Sequence[TakeRecord], titles: Ma
                 st.error(common.md(renamed_text(str(result), names)))
             elif result is not None:
                 st.caption(common.md(describe_take(result[0], result[1], background_db=background,
-                                                   calibrated=calibration_take is not None)))
-            elif calibration_take is not None and take.id == calibration_take.id:
+                                                   calibrated=calibrated)))
+            elif calibrated and take.role == "calibration" and not take.excluded:
                 st.caption(f"calibration offset {offset_db:.2f} dB ({setup.calibrator_db:g} dB calibrator)")
             keep = st.toggle("Use this take", value=not take.excluded, key=f"use-take-{take.id}")
             if keep == take.excluded:
