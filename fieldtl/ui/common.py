@@ -14,7 +14,7 @@ from fieldtl.cautions import CAUTIONS
 from fieldtl.errors import FieldTLError
 from fieldtl.naming import renamed_assessment, renamed_text, take_names
 from fieldtl.store import Project, TestRecord
-from fieldtl.ui import cached, gate, state
+from fieldtl.ui import cached, gate, progress, state
 
 _LOG = logging.getLogger("fieldtl.ui")
 
@@ -140,6 +140,7 @@ def assessment_of(test: TestRecord) -> Assessment | None:
     if still:
         st.warning(f"Results need at least one take of each kind. Still needed: {still}.")
         return None
+    progress.wait_until_measured(test.id)      # the background measurer may still be on this test's takes
     names = take_names_of(test)
     try:
         assessment = cached.assessment(cached.store().survey_for_test(test.id))
