@@ -135,7 +135,7 @@ def test_user_text_is_shown_literally(data_dir, monkeypatch):
         store.create_test(project.id, TestSetup(title=hostile, test_type="airborne", receiving_volume_m3=30.0))
     at = _app()
     _button(at, "airborne").click().run()
-    caption = at.caption[0].value
+    caption = next(c.value for c in at.caption if "click" in c.value)      # the heading under the title
     assert "\\[click\\]\\(http\\://x\\) \\*\\*bold\\*\\* \\<b\\>x\\</b\\>" in caption
     assert "[click](http" not in caption
 

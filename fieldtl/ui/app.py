@@ -25,6 +25,9 @@ _STYLE = """
 div[data-baseweb="select"] > div, .stTextInput input, .stNumberInput input { min-height: 44px; }
 .block-container { padding-left: 0.8rem; padding-right: 0.8rem; max-width: 760px; }
 [data-testid="stDataFrame"] { max-width: 100%; overflow-x: hidden; }
+/* information text at 4.5:1 or more on white (WCAG 2.x): captions and widget help darker than the default grey */
+[data-testid="stCaptionContainer"], [data-testid="stCaptionContainer"] p,
+[data-testid="stWidgetLabel"] p, [data-testid="stMarkdownContainer"] small { color: #474a54 !important; }
 </style>
 """
 
@@ -38,13 +41,22 @@ def _in_store(project_id: int, test_id: int | None) -> bool:
     return test_id is None or any(t.id == test_id for t in tests)
 
 
+def _menu(sections: dict[str, list[st.Page]], current: st.Page) -> None:
+    """The page menu: a button labelled with words, on every page; a new page draws it closed."""
+    with st.popover(f"☰ Menu · {current.title}", width="stretch", key=f"fieldtl-menu-{current.url_path}"):
+        for section, pages in sections.items():
+            st.caption(section)
+            for page in pages:
+                st.page_link(page, label=page.title, icon=page.icon, width="stretch")
+
+
 def main() -> None:
     st.set_page_config(page_title="fieldtl", page_icon="🧱", layout="centered")
     st.markdown(_STYLE, unsafe_allow_html=True)   # our own constant CSS; no user text here
     if not gate.passed():
         gate.draw()      # the gate alone: no navigation, so no page and no page list is sent
     state.restore(_in_store)   # only after the gate: the address opens nothing before the code
-    navigation = st.navigation({
+    sections = {
         "Site work": [
             st.Page(PAGES / "projects.py", title="Projects", icon="📁", default=True),
             st.Page(PAGES / "setup.py", title="Test set-up", icon="📐"),
@@ -57,7 +69,9 @@ def main() -> None:
             st.Page(PAGES / "signals.py", title="Test signals", icon="🔊"),
             st.Page(PAGES / "safety.py", title="Safety and about", icon="⚠️"),
         ],
-    }, position="top")
+    }
+    navigation = st.navigation(sections, position="hidden")
+    _menu(sections, navigation)
     if navigation.url_path != "takes":
         takelist.finish_removals(cached.store())   # a removed take's undo lasts until the Takes page is left
     navigation.run()

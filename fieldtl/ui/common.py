@@ -25,7 +25,6 @@ NAME_CHARS = 120          # project, client, engineer, organisation, test title,
 ADDRESS_CHARS = 200
 DATE_CHARS = 40
 NOTE_CHARS = 4_000        # construction in words, instruments, positions, notes
-BUILD_UP_CHARS = 20_000   # the declared build-up in the construction-file format
 BAND_TABLE_CHARS = 50_000 # pasted band levels: 21 bands x 30 columns of "123.4," fit many times
 
 

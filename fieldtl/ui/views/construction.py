@@ -9,6 +9,12 @@ from fieldtl.report.plot import construction_figure
 from fieldtl.store import declared_construction
 from fieldtl.ui import cached, common, gate
 
+
+
+def _one_decimal(spectrum) -> list[str]:
+    return ["" if v is None else f"{v:.1f}" for v in spectrum.rounded(1)]
+
+
 gate.require_access()
 with common.fenced():
     store = cached.store()
@@ -40,16 +46,17 @@ with common.fenced():
         st.caption(f"No measured R' yet: {common.md(exc)}")
     if check is not None:
         st.pyplot(construction_figure(check))
+        st.caption(f"Per band, {len(check.gap_db.nominal_hz)} bands (the table scrolls down):")
         st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in check.gap_db.nominal_hz],
-                                   "R predicted": list(check.predicted_db.rounded(1)),
-                                   "R' measured": list(check.measured_db.rounded(1)),
-                                   "gap": list(check.gap_db.rounded(1))}), hide_index=True)
+                                   "R predicted": _one_decimal(check.predicted_db),
+                                   "R' measured": _one_decimal(check.measured_db),
+                                   "gap": _one_decimal(check.gap_db)}), hide_index=True)
         for finding in check.findings:
-            st.warning(f"**{finding.code.replace('_', ' ')}**: {common.md(finding.message)} "
-                       f"{common.md(finding.action)}")
+            st.warning(f"**Check**: {common.md(finding.message)} *What to do:* {common.md(finding.action)}")
     else:
+        st.caption(f"Per band, {len(prediction.r_db.nominal_hz)} bands (the table scrolls down):")
         st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in prediction.r_db.nominal_hz],
-                                   "R predicted": list(prediction.r_db.rounded(1))}), hide_index=True)
+                                   "R predicted": _one_decimal(prediction.r_db)}), hide_index=True)
     with st.expander("What the prediction leaves out"):
         for note in prediction.notes:
             st.write(f"- {common.md(note)}")

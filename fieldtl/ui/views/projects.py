@@ -26,9 +26,12 @@ with common.fenced():
         if not tests:
             st.write("No tests yet: set one up.")
         for test in tests:
-            missing = store.missing_roles(test.id)
-            status = "ready for results" if not missing else f"still needs: {', '.join(missing)}"
-            if st.button(f"{common.md(test.setup.title)} — {test.setup.test_type}, {status}", key=f"open-test-{test.id}"):
+            missing = common.missing_words(test)
+            source = "pasted levels" if test.band_levels_csv is not None else "recordings"
+            status = f"{source}, ready for results" if not missing else f"still needs: {missing}"
+            opened = " (open)" if test.id == state.test_id() else ""
+            if st.button(f"{common.md(test.setup.title)}{opened} — {test.setup.test_type}, {status}",
+                         key=f"open-test-{test.id}"):
                 state.open_test(test.id)
                 st.switch_page("views/takes.py")
         if st.button("➕ New test in this project"):

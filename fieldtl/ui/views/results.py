@@ -71,9 +71,9 @@ with common.fenced():
     table = {"Hz": [f"{f:g}" for f in assessment.result.nominal_hz]}
     for name in shown:
         if name in columns:
-            table[name.replace("_prime", "'")] = list(columns[name].rounded(1))
+            table[name.replace("_prime", "'")] = ["" if v is None else f"{v:.1f}" for v in columns[name].rounded(1)]
     table["limit"] = ["bound" if flag else "" for flag in assessment.result.limited]
-    st.dataframe(pd.DataFrame(table), hide_index=True, height=36 * (len(table["Hz"]) + 1))
+    st.table(pd.DataFrame(table).set_index("Hz"))    # every band shown: nothing to scroll on a phone
 
     with st.expander(f"All findings ({len(assessment.findings)}), per take and kind"):
         if not groups:

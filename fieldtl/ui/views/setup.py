@@ -7,7 +7,7 @@ import streamlit as st
 from fieldtl.construction import MATERIALS
 from fieldtl.errors import FieldTLError
 from fieldtl.store import CONSTRUCTION_SETTING, TestSetup, declared_construction
-from fieldtl.ui import cached, common, gate, state
+from fieldtl.ui import buildup, cached, common, gate, state
 from fieldtl.uncertainty import EXAMPLE_REQUIREMENTS, SITUATIONS
 
 
@@ -59,14 +59,12 @@ with common.fenced():
                              format_func=lambda k: f"{k}: {SITUATIONS[k]}")
         calibrator_db = st.number_input("Calibrator level, dB", min_value=60.0, max_value=150.0,
                                         value=float(old.calibrator_db), step=1.0)
-        construction_toml = common.text_field(
-            "Declared build-up for the construction check (optional, construction-file format)",
-            old.settings.get(CONSTRUCTION_SETTING, ""), limit=common.BUILD_UP_CHARS, area=True, height=120,
-            placeholder='[[leaf]]\nlayers = ["plaster_gypsum:13", "concrete_block_dense:215", "plaster_gypsum:13"]')
+        build_up = buildup.fields(old.settings.get(CONSTRUCTION_SETTING, ""))
         saved = st.form_submit_button("Save test")
 
     if saved:
         settings = dict(old.settings)
+        construction_toml = buildup.chosen_text(old.settings.get(CONSTRUCTION_SETTING, ""), build_up)
         if construction_toml.strip():
             settings[CONSTRUCTION_SETTING] = construction_toml
         else:
@@ -90,5 +88,5 @@ with common.fenced():
         for label, text in EXAMPLE_REQUIREMENTS.items():
             st.write(f"`{text}` — {label}")
     with st.expander("Materials known to the construction check"):
-        st.write(", ".join(f"`{name}`" for name in sorted(MATERIALS)))
+        st.write(", ".join(buildup.material_words(name) for name in sorted(MATERIALS)))
     common.cautions()

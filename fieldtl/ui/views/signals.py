@@ -34,8 +34,9 @@ with common.fenced():
         except FieldTLError as exc:
             st.error(common.md(exc))
         else:
-            st.download_button("Download the WAV file", buffer.getvalue(), file_name=f"fieldtl-{kind}.wav",
-                               mime="audio/wav")
+            st.audio(buffer.getvalue(), format="audio/wav")      # play it here, through the phone's output
+            common.download_button("Download the WAV file", buffer.getvalue(), file_name=f"fieldtl-{kind}.wav",
+                                   mime="audio/wav")
             if kind == "sweep":
                 st.info(f"When you store a decay recorded with this sweep, enter: start {low_hz:g} Hz, stop "
                         f"{high_hz:g} Hz, length {seconds:g} s.")
