@@ -7,7 +7,9 @@ designs made by the first run are reused, as they are for the later takes of one
 For comparison, every audio file the survey names is read whole with soundfile. Both are timed
 REPEATS times, taking turns; the medians are compared.
 
-Prints the first run apart (it designs the filters), then ends with the line
+Prints the first run apart (it designs the filters), then the same assessment with every take
+already measured (read from a store's kept measurements, as a second ``fieldtl assess`` or the app
+after a restart does; target at most 0.3 s), and ends with the line
 ``assess <s>s decode <s>s ratio <r>x``. Target (issue 10): ratio at most 5.
 
 Run from anywhere: ``python benchmarks/assess.py [survey.toml]``.
@@ -27,21 +29,23 @@ sys.path.insert(0, str(ROOT))
 
 import soundfile  # noqa: E402
 
-from fieldtl.assess import AssessOptions, assess  # noqa: E402
-from fieldtl.measure import measure_survey  # noqa: E402
+from fieldtl.assess import AssessOptions  # noqa: E402
+from fieldtl.measure_cache import forget_file_hashes  # noqa: E402
 from fieldtl.report.export import assessment_to_json, assessment_to_text  # noqa: E402
+from fieldtl.store import Store  # noqa: E402
 from fieldtl.survey import Survey, load_survey  # noqa: E402
+from fieldtl.testrun import MeasurementCache, assess_survey, store_cache  # noqa: E402
 
 REPEATS = 5
 DEMO = ROOT / "sample_audio" / "survey.toml"
 
 
-def run_assess(path: Path) -> dict[str, Any]:
-    """What ``fieldtl assess <path>`` computes with its default options, as its JSON document."""
+def run_assess(path: Path, cache: MeasurementCache | None = None) -> dict[str, Any]:
+    """What ``fieldtl assess <path>`` computes with its default options, as its JSON document
+    (every take measured afresh without ``cache``; with it, kept measurements are read back)."""
     survey = load_survey(path)
-    measured = measure_survey(survey)
-    assessment = assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings,
-                        options=AssessOptions(decision_rule="guarded", source_combination="energy"))
+    assessment = assess_survey(survey, cache=cache,
+                               options=AssessOptions(decision_rule="guarded", source_combination="energy"))
     assessment_to_text(assessment)
     return assessment_to_json(assessment)
 
@@ -73,12 +77,23 @@ def main() -> None:
         start = time.perf_counter()
         decode_all(files)
         decode_s.append(time.perf_counter() - start)
+    with Store.open(":memory:") as store:
+        assert run_assess(path, store_cache(store)) == first_json      # measures every take and keeps it
+        cached_s = []
+        for _ in range(REPEATS):
+            forget_file_hashes()         # as in a new process: every file hashed to find its measurement
+            start = time.perf_counter()
+            assert run_assess(path, store_cache(store)) == first_json
+            cached_s.append(time.perf_counter() - start)
     assess_median, decode_median = statistics.median(assess_s), statistics.median(decode_s)
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"{path.name}: {len(files)} audio files, {sum(soundfile.info(f).duration for f in files):.0f} s of audio; "
           f"median of {REPEATS}, load average {load:.2f}")
     print(f"first run in this process (designs the filters) {first_s:.3f} s")
     print(f"assess runs: " + " ".join(f"{t:.3f}" for t in assess_s) + " s")
+    cached_median = statistics.median(cached_s)
+    print(f"with every take already measured: assess {cached_median:.3f}s (target <= 0.3 s) "
+          f"decode {decode_median:.3f}s ratio {cached_median / decode_median:.1f}x")
     print(f"assess {assess_median:.3f}s decode {decode_median:.3f}s ratio {assess_median / decode_median:.1f}x")
 
 

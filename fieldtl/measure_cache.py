@@ -266,6 +266,11 @@ def _number(value: Any) -> float:
 _FILE_HASHES: dict[tuple[str, int, int], str] = {}
 
 
+def forget_file_hashes() -> None:
+    """Hash every file again when next met (benchmarks: time a run as a new process would)."""
+    _FILE_HASHES.clear()
+
+
 def _file_sha256(file: Path) -> str:
     """SHA-256 of the file's bytes, remembered while its size and modification time stay the same."""
     from fieldtl.audio.ingest import file_sha256
