@@ -42,6 +42,7 @@ class PlacedFile:
     analysed_s: float
     sample_rate_hz: int
     start_from: str              # "given", "file" (broadcast-wave origination), "follows"
+    path: str | None = None      # where the audio is (for event clips); never written to an output
 
 
 @dataclass(frozen=True, slots=True)
@@ -123,6 +124,7 @@ class Source:
     frames: int
     blocks: Callable[[], Iterator[np.ndarray]]
     local_start: datetime | None = None
+    path: str | None = None
 
     @property
     def duration_s(self) -> float:
@@ -145,7 +147,7 @@ def file_sources(paths: Sequence[str | Path], *, channel: int = 0) -> tuple[list
         sources.append(Source(recording.name, recording.sample_rate_hz, recording.frames,
                               functools.partial(iter_blocks, recording,
                                                 block_frames=int(BLOCK_S * recording.sample_rate_hz)),
-                              None if origination is None else origination.local_start))
+                              None if origination is None else origination.local_start, recording.path))
     return sources, findings
 
 
@@ -248,7 +250,7 @@ def analyse_sources(sources: Sequence[Source], settings: RecordSettings = Record
                                  "Lower the recorder's input gain for the next night.", clause="common practice"))
         done_frames += source.frames
         placed.append(PlacedFile(name, file_start, source.duration_s, frames_read / source.sample_rate_hz,
-                                 source.sample_rate_hz, start_from))
+                                 source.sample_rate_hz, start_from, source.path))
         previous_end = file_start + timedelta(seconds=source.duration_s)
     assert collector is not None and bands_hz is not None
     collector.finish()

@@ -75,6 +75,8 @@ DEFAULT_SOURCES: tuple[SourceSpectrum, ...] = (
 
 def events_spectrum(record: NoiseRecord) -> BandSpectrum:
     """Energy mean of the band levels of every event in the record (nan bands left out)."""
+    if not record.calibrated:
+        raise InputError("the record is not calibrated: its levels cannot be set against a source's sound levels")
     if not record.events:
         raise InputError("the record has no events to compare with the wall")
     levels = np.array([e.band_leq_db for e in record.events], dtype=float)
