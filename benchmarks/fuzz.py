@@ -10,6 +10,7 @@ distinct_causes <n>" (a cause: exception type and innermost fieldtl line, or the
 from __future__ import annotations
 
 import collections
+import os
 import sys
 import tempfile
 import warnings
@@ -26,6 +27,7 @@ def main(count: int, seed: int) -> None:
     problems: collections.Counter[str] = collections.Counter()
     causes: dict[tuple[str, str], tuple[str, ...]] = {}
     with tempfile.TemporaryDirectory() as folder:
+        os.environ["FIELDTL_DATA_DIR"] = str(Path(folder) / "store")     # never the user's own store
         for kind, argv in cases(seed, count, Path(folder)):
             outcome = run_case(kind, argv)
             codes[outcome.code] += 1
