@@ -64,7 +64,7 @@ def timeline_figure(record: NoiseRecord, *, diary: Sequence[DiaryMatch] = ()) ->
     axes.set_ylim(bottom=floor)
     axes.set_xlim(record.start, record.end)
     axes.xaxis.set_major_formatter(mdates.DateFormatter("%H:%M", tz=zone))
-    axes.xaxis.set_major_locator(mdates.AutoDateLocator(tz=zone, maxticks=7))
+    axes.xaxis.set_major_locator(mdates.AutoDateLocator(tz=zone, minticks=3, maxticks=8))
     axes.tick_params(labelsize=FONT_SIZE)
     unit = "dB" if record.calibrated else "dB re full scale"
     axes.set_ylabel(f"level ({unit})", fontsize=FONT_SIZE)

@@ -69,7 +69,7 @@ def record_to_json(record: NoiseRecord, *, diary: Sequence[DiaryMatch] = (), wal
         "intervals": [_levels(i) for i in record.intervals],
         "periods": [{"name": p.name, "date": p.date, "night": p.night, "events": p.events, **_levels(p.levels)}
                     for p in record.periods],
-        "events": [{"number": numbers[id(e)], "start": e.start.isoformat(), "duration_s": _r(e.duration_s, 2),
+        "events": [{"number": numbers[id(e)], "start": e.start.isoformat(timespec="milliseconds"), "duration_s": _r(e.duration_s, 2),
                     "lafmax_db": _r(e.lafmax_db), "lae_db": _r(e.lae_db), "background_db": _r(e.background_db),
                     "threshold_db": _r(e.threshold_db), "band_leq_db": _bands(e.band_leq_db)}
                    for e in record.events],
@@ -116,7 +116,7 @@ def events_to_csv(record: NoiseRecord) -> str:
     writer.writerow(["number", "start", "duration_s", f"LAFmax {unit}", f"LAE {unit}", f"background LAF90 {unit}",
                      f"threshold {unit}", *[f"Leq {json_number(f)} Hz {unit}" for f in record.bands_hz]])
     for number, e in enumerate(record.events, start=1):
-        writer.writerow([number, e.start.isoformat(), _cell(_r(e.duration_s, 2)), _cell(_r(e.lafmax_db)),
+        writer.writerow([number, e.start.isoformat(timespec="milliseconds"), _cell(_r(e.duration_s, 2)), _cell(_r(e.lafmax_db)),
                          _cell(_r(e.lae_db)), _cell(_r(e.background_db)), _cell(_r(e.threshold_db)),
                          *[_cell(v) for v in _bands(e.band_leq_db)]])
     return out.getvalue()

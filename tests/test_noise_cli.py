@@ -1,0 +1,81 @@
+"""`fieldtl record`: outputs written, one-line errors with exit status 2, a damaged file in the middle
+reported while the others are analysed (expected levels from the invented tone files)."""
+
+from __future__ import annotations
+
+import json
+from datetime import datetime
+from pathlib import Path
+
+import numpy as np
+import pytest
+from noise_night import amplitude, write_wav
+
+from fieldtl.cli import main
+
+RATE_HZ = 44_100
+
+
+def _night(path: Path, *, local_start: datetime | None) -> Path:
+    t_s = np.arange(60 * RATE_HZ) / RATE_HZ
+    a = np.where((t_s >= 20.0) & (t_s < 23.0), amplitude(-25.0), amplitude(-50.0))
+    return write_wav(path, a * np.sin(2 * np.pi * 1000.0 * t_s), sample_rate_hz=RATE_HZ, local_start=local_start)
+
+
+@pytest.fixture
+def files(tmp_path: Path):
+    first = _night(tmp_path / "1.wav", local_start=datetime(2026, 11, 28, 23, 58))
+    second = _night(tmp_path / "2.wav", local_start=None)
+    diary = tmp_path / "diary.csv"
+    diary.write_text("time;heard;disturbance\n23:58;bang;7\n", encoding="utf-16")
+    return tmp_path, first, second, diary
+
+
+def test_record_writes_every_output(files, capsys):
+    folder, first, second, diary = files
+    out = folder / "out"
+    out.mkdir()
+    code = main(["record", str(first), str(second), "--timezone", "Europe/London", "--interval", "1min",
+                 "--diary", str(diary), "--json", str(out / "r.json"), "--csv", str(out / "r.csv"),
+                 "--plot", str(out / "r.png"), "--pdf", str(out / "r.pdf")])
+    printed = capsys.readouterr().out
+    assert code == 0
+    assert sorted(p.name for p in out.iterdir()) == ["r-events.csv", "r.csv", "r.json", "r.pdf", "r.png"]
+    document = json.loads((out / "r.json").read_text(encoding="utf-8"))
+    starts = [datetime.fromisoformat(e["start"]).timestamp() for e in document["events"]]
+    expected = [datetime.fromisoformat(t).timestamp() for t in ("2026-11-28T23:58:20+00:00", "2026-11-28T23:59:20+00:00")]
+    assert starts == pytest.approx(expected, abs=0.02)      # 10 ms steps
+    assert document["diary"][0]["event_number"] == 1
+    assert "not a legal determination" in printed and "2 event(s)" in printed
+
+
+@pytest.mark.parametrize(("extra", "message"), [
+    (["--timezone", "Mars/Base"], "time zone 'Mars/Base' is unknown"),
+    (["--interval", "7min"], "choose 1min, 5min, 15min or 60min"),
+    (["--start", "28/11/2026"], "write it like 2026-11-28T22:00"),
+    (["--event-margin-db", "0.5"], "event margin must be between 1 and 60"),
+    (["--json", "/no/such/folder/r.json"], "does not exist"),
+])
+def test_bad_options_are_one_line(files, capsys, extra, message):
+    _, first, _, _ = files
+    assert main(["record", str(first), *extra]) == 2
+    err = capsys.readouterr().err
+    assert message in err and err.count("\n") == 1
+
+
+def test_missing_start_and_missing_file(files, capsys):
+    folder, _, second, _ = files
+    assert main(["record", str(second)]) == 2
+    assert "2.wav: the file holds no start time" in capsys.readouterr().err
+    assert main(["record", str(second), str(folder / "nope.wav"), "--start", "2026-11-28T22:00"]) == 2
+    assert capsys.readouterr().err.strip() == "fieldtl: nope.wav: file not found"
+
+
+def test_damaged_file_in_the_middle(files, capsys):
+    folder, first, second, _ = files
+    broken = folder / "broken.wav"
+    broken.write_bytes(b"RIFF" + bytes(40))
+    assert main(["record", str(first), str(broken), str(second), "--timezone", "Europe/London"]) == 0
+    printed = capsys.readouterr().out
+    assert "ERROR file_unreadable: broken.wav:" in printed
+    assert "2 event(s)" in printed          # the files either side were analysed
