@@ -134,6 +134,9 @@ def _parser() -> argparse.ArgumentParser:
                                                    "exports older than an hour")
     clean.add_argument("--data-dir", type=Path, help="folder of the project store (default: your user data folder)")
     clean.set_defaults(run=_run_store_clean)
+
+    from fieldtl.noise.command import add_record_options
+    add_record_options(sub).set_defaults(run=_run_record)
     return parser
 
 
@@ -395,6 +398,13 @@ def _run_store_clean(args: argparse.Namespace) -> int:
         print(f"removed {path.parent.name}/{path.name}")
     print(f"{len(removed)} file{'' if len(removed) == 1 else 's'} removed from the store in {data_dir}")
     return 0
+
+
+def _run_record(args: argparse.Namespace) -> int:
+    from fieldtl.noise.command import run_record
+
+    return run_record(args, progress_bar=lambda: _progress_bar("record", math.inf), check_output=check_output,
+                      plot_suffixes=plot_suffixes)
 
 
 # --- helpers ------------------------------------------------------------------------------------------
