@@ -1,7 +1,9 @@
 """ISO 16283-1 field airborne arithmetic, checked against the standard's formulas and worked values.
 
-Expected numbers are computed by hand in the comments from the formulas of the project's facts
-sheet (sections 0, 1.1-1.10); each comment says whether the rule is verified or from memory.
+Expected numbers are computed by hand in the comments ("analytic") from the ISO 16283-1 formulas
+(D = L1 - L2, DnT = D + 10 lg(T/0.5), Dn = D - 10 lg(A/10), R' = D + 10 lg(S/A), A = 0.16 V/T),
+its background-correction rule and the energy-average conventions; each comment says whether the
+rule is from memory (and how confident) or checked against a named public source.
 """
 
 from __future__ import annotations
@@ -49,7 +51,7 @@ def simple_measurement(l1: float = 95.0, l2: float = 45.0, t_s: float = 0.8, bac
     return AirborneMeasurement([position, position], [flat(background)] * 5, decays(t_s) * 6)
 
 
-# --- background correction (ISO 16283-1, facts sheet 1.8) ---------------------------------------
+# --- background correction (ISO 16283-1 background-correction rule, from memory) --------------
 
 @pytest.mark.parametrize(("margin_db", "correction_db", "limited"), [
     (5.9, 1.3, True),  # <= 6 dB: fixed 1.3 dB and a limit
@@ -67,7 +69,7 @@ def test_background_correction_at_the_margins(margin_db, correction_db, limited)
 
 
 def test_background_correction_worked_example():
-    # facts sheet 1.8 [C]: Lsb = 40.0, Lb = 32.0 -> 10 lg(10^4 - 10^3.2) = 39.25 dB
+    # ISO 16283-1 background-correction rule, analytic: Lsb = 40.0, Lb = 32.0 -> 10 lg(10^4 - 10^3.2) = 39.25 dB
     assert float(background_corrected_db(40.0, 32.0).level_db) == pytest.approx(39.25, abs=0.005)
 
 
@@ -79,10 +81,10 @@ def test_margins_of_six_and_ten_with_float_noise_count_as_six_and_ten():
     assert float(background_corrected_db(32.3, 22.3).level_db) == 32.3
 
 
-# --- the standard's formulas end to end (facts sheet 1.1) ----------------------------------------
+# --- the standard's formulas end to end (ISO 16283-1 formulas, from memory, high confidence) ----
 
 def test_worked_example_d_dnt_dn_r():
-    # facts sheet 1.1 [C]: L1 95, L2 45, T 0.8 s, V 40 m3, S 10 m2 -> D 50.00, A 8.00 m2,
+    # ISO 16283-1 formulas, analytic: L1 95, L2 45, T 0.8 s, V 40 m3, S 10 m2 -> D 50.00, A 8.00 m2,
     # DnT = 50 + 10 lg(0.8/0.5) = 52.04, Dn = 50 - 10 lg(8/10) = 50.97, R' = 50 + 10 lg(10/8) = 50.97
     result = airborne_insulation(simple_measurement(), Rooms(60.0, 40.0, 10.0))
     for hz in (100.0, 500.0, 3150.0):
@@ -98,7 +100,7 @@ def test_worked_example_d_dnt_dn_r():
 @given(l2=hs.floats(20.0, 80.0), t_s=hs.floats(0.2, 3.0), volume_m3=hs.floats(10.0, 250.0),
        area_m2=hs.floats(5.0, 40.0))
 def test_dnt_and_dn_identities_with_r(l2, t_s, volume_m3, area_m2):
-    # facts sheet 1.1 [C]: DnT = R' + 10 lg(0.32 V / S) and Dn = R' + 10 lg(10 / S), from
+    # analytic identities of the ISO 16283-1 formulas: DnT = R' + 10 lg(0.32 V / S) and Dn = R' + 10 lg(10 / S), from
     # R' = D + 10 lg(S/A), A = 0.16 V/T, DnT = D + 10 lg(T/0.5), Dn = D - 10 lg(A/10)
     measurement = simple_measurement(l2=l2, t_s=t_s, background=l2 - 30.0)
     result = airborne_insulation(measurement, Rooms(300.0, volume_m3, area_m2), area_rule="off")
@@ -109,7 +111,8 @@ def test_dnt_and_dn_identities_with_r(l2, t_s, volume_m3, area_m2):
 
 
 def test_energy_average_of_microphone_positions():
-    # facts sheet 12 [C]: energy average of 62.0, 64.5, 63.1, 61.8, 65.0 dB = 63.47 dB
+    # energy average L = 10 lg((1/n) Σ 10^(Li/10)) (ISO 16283-1, from memory), analytic:
+    # 62.0, 64.5, 63.1, 61.8, 65.0 dB = 63.47 dB
     readings = [flat(v) for v in (62.0, 64.5, 63.1, 61.8, 65.0)]
     measurement = AirborneMeasurement([LoudspeakerPosition([flat(100.0)] * 5, readings)], [flat(0.0)], decays(0.5))
     result = airborne_insulation(measurement, Rooms(60.0, 50.0, 12.0))
@@ -120,10 +123,10 @@ def test_energy_average_of_microphone_positions():
     assert result.spread.receiving_count == 5
 
 
-# --- loudspeaker positions (ISO 16283-1, facts sheet 1.6; the combination formula is from memory) -
+# --- loudspeaker positions (ISO 16283-1; the combination formula is from memory) ----------------
 
 def test_loudspeaker_combination_rules():
-    # facts sheet 1.6 [C]: D1 = 50, D2 = 54 -> energy -10 lg((10^-5 + 10^-5.4)/2) = 51.55; arithmetic 52.0
+    # analytic: D1 = 50, D2 = 54 -> energy -10 lg((10^-5 + 10^-5.4)/2) = 51.55; arithmetic 52.0
     differences = np.array([[50.0], [54.0]])
     assert combine_source_positions(differences)[0] == pytest.approx(51.55, abs=0.005)
     assert combine_source_positions(differences, rule="arithmetic")[0] == pytest.approx(52.0)
@@ -230,7 +233,7 @@ def test_small_room_without_corners_gives_a_finding():
     assert [f.code for f in result.findings] == ["low_frequency_corners_missing", "low_frequency_octave_t_missing"]
 
 
-# --- limited bands (facts sheet 1.8: airborne values become lower bounds) ------------------------
+# --- limited bands (ISO 16283-1 background rule, from memory: airborne values become lower bounds)
 
 def test_limited_bands_propagate_to_results_octaves_and_single_number_bound():
     # L2 at 500 Hz only 5 dB over the background -> corrected by 1.3 dB and marked
@@ -247,10 +250,10 @@ def test_limited_bands_propagate_to_results_octaves_and_single_number_bound():
     assert result.single_number_bound((1000.0, 2000.0)) == "exact"
 
 
-# --- octave values (facts sheet 0 and 12) ---------------------------------------------------------
+# --- octave values (octave index from three thirds, from memory, high confidence) ---------------
 
 def test_octave_level_difference():
-    # facts sheet 12 [C]: -10 lg((10^-4.8 + 10^-5.0 + 10^-5.2)/3) = 49.70 dB
+    # analytic: -10 lg((10^-4.8 + 10^-5.0 + 10^-5.2)/3) = 49.70 dB
     thirds = BandSpectrum((400.0, 500.0, 630.0), (48.0, 50.0, 52.0), "dB", "D")
     octave = octave_level_difference_db(thirds)
     assert octave.nominal_hz == (500.0,) and octave.fraction == 1
@@ -259,10 +262,10 @@ def test_octave_level_difference():
     assert octave_level_difference_db(with_gap).values == (None,)
 
 
-# --- area S and rooms (facts sheet 1.10, from memory, low-medium confidence) ---------------------
+# --- area S and rooms (ISO 16283-1 V/7.5 rule, from memory, low-medium confidence) --------------
 
 def test_separating_area_rules():
-    # V_smaller = 30 m3 -> V/7.5 = 4.00 m2 > 3 m2 common area (facts sheet 1.10 [C])
+    # V_smaller = 30 m3 -> V/7.5 = 4.00 m2 > 3 m2 common area (analytic)
     assert separating_area_m2(Rooms(30.0, 60.0, 3.0))[0] == pytest.approx(4.0)
     assert separating_area_m2(Rooms(30.0, 60.0, 3.0), rule="receiving")[0] == pytest.approx(8.0)
     assert separating_area_m2(Rooms(30.0, 60.0, 3.0), rule="off")[0] == 3.0

@@ -96,7 +96,7 @@ def test_fit_needs_the_curve_to_reach_the_bottom_of_the_range():
 
 def test_schroeder_curve_of_an_exponential_with_its_tail_is_exact():
     # Σ_{k>=n} r^k = r^n / (1 - r): backward integration of a geometric energy sequence stays
-    # geometric when the missing tail r^N / (1 - r) is added (analytic; facts sheet 6.3 (a)).
+    # geometric when the missing tail r^N / (1 - r) is added (analytic; the tail correction of pyrato edc.py).
     t_s, n = 0.5, 12_000
     ratio = math.exp(-math.log(1e6) / (t_s * FS))
     energy = ratio ** np.arange(n)
@@ -380,7 +380,8 @@ def test_unusable_input_raises_one_line(samples, kwargs, match):
 def test_trailing_digital_silence_does_not_hide_the_decay():
     # An impulse response file padded with a second of zeros (or deconvolution residue ~165 dB down)
     # must give the same T20 as without the padding: padding is not the room's noise (Lundeby's
-    # noise estimate from the last 10 %, facts sheet 6.3, would read the padding instead).
+    # noise estimate from the last 10 %, Lundeby et al., Acustica 81 (1995), as in pyrato
+    # intersection_time_lundeby, would read the padding instead).
     rate = 48_000
     time_s = np.arange(int(1.5 * rate)) / rate
     rng = np.random.default_rng(11)

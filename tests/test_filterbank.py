@@ -17,16 +17,17 @@ G = 10 ** 0.3  # base-ten octave ratio, IEC 61260-1:2014
 SAMPLE_RATES_HZ = (44_100.0, 48_000.0, 96_000.0)
 LOWEST_HZ = {3: 20.0, 1: 31.5}
 
-# IEC 61260-1:2014 class 1 relative attenuation limits (facts sheet 7.2, [V] open-source
-# octave-filter module): breakpoints x (exponent of G, octave-normalised), minimum and maximum
-# attenuation in dB relative to fm. x = 1/2 appears twice: inside and just outside the band edge.
+# IEC 61260-1:2014 class 1 relative attenuation limits (checked against a public open-source
+# octave-filter module that carries the IEC 61260-1:2014 limits; not read in the standard itself):
+# breakpoints x (exponent of G, octave-normalised), minimum and maximum attenuation in dB relative
+# to fm. x = 1/2 appears twice: inside and just outside the band edge.
 MASK_X = (0.0, 1 / 8, 1 / 4, 3 / 8, 1 / 2, 1 / 2, 1.0, 2.0, 3.0, 4.0)
 MASK_MIN_DB = (-0.4, -0.4, -0.4, -0.4, -0.4, 1.2, 16.6, 40.5, 60.0, 70.0)
 MASK_MAX_DB = (0.4, 0.5, 0.7, 1.4, 5.3)   # pass band; no maximum outside the band
 
 
 def mask_x(frequency_hz: np.ndarray, centre_hz: float, fraction: int) -> np.ndarray:
-    """Breakpoint exponent x of each frequency: facts sheet 7.2 maps a one-third-octave frequency
+    """Breakpoint exponent x of each frequency: IEC 61260-1:2014 maps a one-third-octave frequency
     ratio to the octave breakpoints by Ω_b = 1 + [(G^(1/(2b)) - 1)/(G^(1/2) - 1)] (G^x - 1),
     reciprocal below fm; solved here for x."""
     ratio = frequency_hz / centre_hz
@@ -37,7 +38,7 @@ def mask_x(frequency_hz: np.ndarray, centre_hz: float, fraction: int) -> np.ndar
 
 def mask_limits_db(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     # between breakpoints the limits are interpolated linearly in x, as the public scripts do
-    # (the standard's own interpolation rule is not known, facts sheet 7.2)
+    # (IEC 61260-1:2014's own interpolation rule is not known to us)
     inside = x <= 0.5
     low = np.where(inside, np.interp(x, MASK_X[:5], MASK_MIN_DB[:5]), np.interp(x, MASK_X[5:], MASK_MIN_DB[5:]))
     high = np.where(inside, np.interp(np.minimum(x, 0.5), MASK_X[:5], MASK_MAX_DB), np.inf)
@@ -45,8 +46,8 @@ def mask_limits_db(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def test_mask_helper_reproduces_published_one_third_octave_breakpoints():
-    # facts sheet 7.2: the mapped ratios 1.29437 and 1.88173 for x = 1, 2 appear in two independent
-    # public filter-limit modules
+    # IEC 61260-1:2014 breakpoint mapping, checked against public code: the mapped ratios 1.29437
+    # and 1.88173 for x = 1, 2 appear in two independent open-source filter-limit modules
     centre_hz = 1000.0
     assert mask_x(np.array([1294.37, 1881.73, 1000 / 1.29437]), centre_hz, 3) == pytest.approx([1, 2, 1], abs=1e-4)
 
@@ -54,7 +55,7 @@ def test_mask_helper_reproduces_published_one_third_octave_breakpoints():
 @pytest.mark.parametrize("fraction", [3, 1])
 @pytest.mark.parametrize("sample_rate_hz", SAMPLE_RATES_HZ)
 def test_every_band_meets_iec_61260_1_class_1(sample_rate_hz, fraction):
-    # IEC 61260-1:2014 class 1 (facts sheet 7.2) for the whole chain: anti-alias low-passes,
+    # IEC 61260-1:2014 class 1 (limits as above) for the whole chain: anti-alias low-passes,
     # decimations (aliases included) and the band-pass, from 1 Hz to just below fs/2
     bank = design_filter_bank(sample_rate_hz=sample_rate_hz, fraction=fraction, low_hz=LOWEST_HZ[fraction],
                               high_hz=highest_band_hz(sample_rate_hz=sample_rate_hz, fraction=fraction))
@@ -85,7 +86,9 @@ def test_band_the_rate_cannot_hold_is_refused_in_one_line():
 
 
 def test_bands_sit_at_exact_base_ten_frequencies():
-    # IEC 61260-1:2014 (facts sheet 7.1 table): exact mid-band and edge frequencies
+    # IEC 61260-1:2014 base-ten formulas fm = 1000·G^(x/3), edges fm·G^(∓1/6) (checked against
+    # python-acoustics iec_61260_1_2014.py and pyfar fractional_octaves.py): exact mid-band and
+    # edge frequencies
     bank = design_filter_bank(sample_rate_hz=48_000.0, low_hz=50.0, high_hz=10_000.0)
     by_nominal = {band.nominal_hz: band for band in bank.bands}
     assert by_nominal[50.0].centre_hz == pytest.approx(50.119, abs=5e-4)
@@ -137,7 +140,7 @@ def test_band_sos_hands_out_a_writable_copy_of_one_design():
 
 def test_anti_alias_low_pass_stop_band_is_90_db_down():
     # design contract: 90 dB down from 0.6 of the output rate (0.3 of the input rate), well below
-    # the 60-70 dB floor of the class-1 mask (facts sheet 7.3, common practice); flat to 0.002 dB
+    # the 60-70 dB floor of the IEC 61260-1:2014 class-1 mask (common practice); flat to 0.002 dB
     # up to 0.38 of the output rate
     _, stop = signal.sosfreqz(anti_alias_sos(), worN=np.linspace(0.3, 0.5, 500), fs=1.0)
     assert 20 * np.log10(np.max(np.abs(stop))) < -89.99

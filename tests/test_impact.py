@@ -1,6 +1,8 @@
 """ISO 16283-2 field impact arithmetic, checked against the standard's formulas and worked values.
 
-Expected numbers are computed in the comments from the facts sheet (section 2; background rule 1.8).
+Expected numbers are computed by hand in the comments ("analytic") from the ISO 16283-2 formulas
+L'n = Li + 10 lg(A/A0), L'nT = Li - 10 lg(T/T0), A = 0.16 V/T (all from memory, high confidence)
+and the ISO 16283-1/-2 background-correction rule (from memory, high confidence).
 """
 
 from __future__ import annotations
@@ -35,7 +37,7 @@ def measurement(li: float = 60.0, t_s: float = 0.6, background: float = 20.0, **
 
 
 def test_worked_example_normalized_and_standardized_impact_level():
-    # facts sheet 2 [C]: Li 60, T 0.6 s, V 45 m3 -> A = 0.16·45/0.6 = 12 m2,
+    # ISO 16283-2 formulas, analytic: Li 60, T 0.6 s, V 45 m3 -> A = 0.16·45/0.6 = 12 m2,
     # L'n = 60 + 10 lg(12/10) = 60.79, L'nT = 60 - 10 lg(0.6/0.5) = 59.21
     result = impact_insulation(measurement(), receiving_volume_m3=45.0)
     for hz in (100.0, 500.0, 3150.0):
@@ -48,7 +50,7 @@ def test_worked_example_normalized_and_standardized_impact_level():
 
 @given(li=hs.floats(30.0, 90.0), t_s=hs.floats(0.2, 3.0), volume_m3=hs.floats(10.0, 250.0))
 def test_standardized_and_normalized_identity(li, t_s, volume_m3):
-    # facts sheet 2 [C]: L'nT = L'n - 10 lg(0.032 V), from A = 0.16 V/T, A0 = 10 m2, T0 = 0.5 s
+    # analytic identity of the ISO 16283-2 formulas: L'nT = L'n - 10 lg(0.032 V), from A = 0.16 V/T, A0 = 10 m2, T0 = 0.5 s
     result = impact_insulation(measurement(li=li, t_s=t_s, background=li - 30.0), receiving_volume_m3=volume_m3)
     assert result.standardized_impact_level_db.at(500) == pytest.approx(
         result.normalized_impact_level_db.at(500) - 10 * math.log10(0.032 * volume_m3), abs=1e-9)
@@ -72,13 +74,14 @@ def test_li_is_the_energy_average_over_tapping_and_microphone_positions():
 
 def test_limited_bands_are_upper_bounds():
     # 500 Hz only 4 dB over the background: Li corrected by 1.3 dB and marked; for impact the
-    # reported level is then an upper bound (facts sheet 1.8 / 2)
+    # reported level is then an upper bound (ISO 16283-2 background-correction rule, from memory)
     result = impact_insulation(measurement(background=20.0, hz_500=24.0), receiving_volume_m3=45.0)
     assert result.limited[BANDS.index(500.0)] and sum(result.limited) == 1
     assert result.impact_level_db.at(500) == pytest.approx(24.0 - 1.3)
     assert result.single_number_bound() == "upper"
     assert octave_limited(result.nominal_hz, result.limited)[3]  # the 500 Hz octave (63, 125, 250, 500, ...)
-    # energy subtraction between 6 and 10 dB: Lsb 40, Lb 32 -> 39.25 (facts sheet 1.8 [C])
+    # energy subtraction between 6 and 10 dB: Lsb 40, Lb 32 -> 39.25 (ISO 16283-2 background-correction
+    # rule, analytic)
     corrected = impact_insulation(measurement(li=40.0, background=32.0), receiving_volume_m3=45.0)
     assert corrected.impact_level_db.at(1000) == pytest.approx(39.25, abs=0.005)
     assert not any(corrected.limited)
@@ -134,7 +137,8 @@ def test_corner_background_missing_is_a_finding_not_an_error():
 
 
 def test_octave_impact_levels_are_energy_sums():
-    # facts sheet 2 [C]: 10 lg(10^5.0 + 10^5.2 + 10^4.8) = 55.07 dB
+    # ISO 16283-2 octave impact level = energy sum of the thirds (from memory), analytic:
+    # 10 lg(10^5.0 + 10^5.2 + 10^4.8) = 55.07 dB
     thirds = BandSpectrum((800.0, 1000.0, 1250.0), (50.0, 52.0, 48.0), "dB", "L'nT")
     assert octave_level_sum_db(thirds).at(1000) == pytest.approx(55.07, abs=0.005)
 

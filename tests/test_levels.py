@@ -66,8 +66,8 @@ def test_full_scale_sine_reads_minus_3_01_db_and_the_offset_adds():
 
 @pytest.mark.parametrize(("frequency_hz", "a_db", "c_db"), [(100.0, -19.1, -0.3), (10 ** 3.9, -1.1, -3.0)])
 def test_laeq_and_lceq_of_a_sine_follow_the_weighting_table(frequency_hz, a_db, c_db):
-    # IEC 61672-1 table (facts sheet 8) at 100 Hz and 8 kHz (exact 7943 Hz): 0.05 dB table rounding
-    # plus 0.01 dB digital filter
+    # IEC 61672-1:2013 weighting table (checked against python-acoustics iec_61672_1_2013.csv) at
+    # 100 Hz and 8 kHz (exact 7943 Hz): 0.05 dB table rounding plus 0.01 dB digital filter
     result = analyse_levels([tone(frequency_hz, 0.1, 2.0)], sample_rate_hz=RATE_HZ)
     assert result.laeq_db == pytest.approx(sine_level_db(0.1) + a_db, abs=0.06)
     assert result.lceq_db == pytest.approx(sine_level_db(0.1) + c_db, abs=0.06)
@@ -168,7 +168,7 @@ def test_pink_noise_band_levels_match_analytic_band_power(fraction, warping_db, 
 
 
 def test_octave_is_the_energy_sum_of_its_thirds_for_pink_noise(pink_thirds, pink_octaves):
-    # L_oct = 10 lg Σ 10^(L_i/10) over its three thirds (facts sheet 0) holds exactly for ideal
+    # L_oct = 10 lg Σ 10^(L_i/10) over its three thirds (energy sum, analytic) holds exactly for ideal
     # filters. Tolerance 0.15 dB: the Butterworth octave and thirds have slightly different noise
     # bandwidths for pink noise (0.17 vs 0.20 dB analog excess, warping trims the octave more, so the
     # octave reads about 0.06 dB low, computed) and see the noise where their shapes differ at random.

@@ -1,8 +1,9 @@
 """ISO 717-1 / ISO 717-2 ratings against the published tables, hand-rated vectors and the shift rule.
 
-"Facts sheet" below is /work/shared/reference/standards.md; its tags say where each number comes
-from ([V] verified against a named public source, [C] computed, [M-*] from memory, [CP] common
-practice).
+Each comment names where its number comes from: a reference curve or spectrum of ISO 717-1/-2
+"checked against" a named open-source library (python-acoustics building.py and its tests, or the
+open-source acoustics toolbox files ita_soundInsulationIndexAirborne.m / ...Impact.m), a vector
+rated by hand in the comment ("analytic"), or a rule recalled "from memory" or "common practice".
 """
 
 from __future__ import annotations
@@ -24,12 +25,14 @@ from fieldtl.rating import (AIRBORNE_REFERENCE_OCTAVES, AIRBORNE_REFERENCE_THIRD
                             rate_iso717_1, rate_iso717_2)
 from fieldtl.rating.iso717 import round_half_up
 
-# Published reference values, copied from the facts sheet tables (not from the module under test).
-# ISO 717-1 one-third octaves 100-3150 Hz and octaves 125-2000 Hz: facts sheet 4.1 [V: an open-source
-# acoustics toolbox; python-acoustics building.py, same shape offset by 33].
+# Published reference values, typed in here (not taken from the module under test).
+# ISO 717-1 reference curve, one-third octaves 100-3150 Hz and octaves 125-2000 Hz: checked against
+# the open-source acoustics toolbox file ita_soundInsulationIndexAirborne.m and python-acoustics
+# building.py (same shape, offset by 33).
 ISO717_1_THIRDS = (33, 36, 39, 42, 45, 48, 51, 52, 53, 54, 55, 56, 56, 56, 56, 56)
 ISO717_1_OCTAVES = (36, 45, 52, 55, 56)
-# ISO 717-2: facts sheet 4.4 [V: an open-source acoustics toolbox].
+# ISO 717-2 reference curve: checked against the open-source acoustics toolbox file
+# ita_soundInsulationIndexImpact.m.
 ISO717_2_THIRDS = (62, 62, 62, 62, 62, 62, 61, 60, 59, 58, 57, 54, 51, 48, 45, 42)
 ISO717_2_OCTAVES = (67, 67, 65, 62, 49)
 
@@ -70,20 +73,22 @@ def test_reference_curves_are_the_published_tables():
 
 
 def test_c_and_ctr_spectra_100_3150_are_the_published_values():
-    # Facts sheet 4.3 [V: python-acoustics building.py, rw_c / rw_ctr tables].
+    # ISO 717-1 spectra No. 1 and No. 2, 100-3150 Hz: checked against python-acoustics building.py
+    # (rw_c / rw_ctr tables).
     assert AIRBORNE_SPECTRA_THIRDS["C"].values == tuple(
         float(v) for v in (-29, -26, -23, -21, -19, -17, -15, -13, -12, -11, -10, -9, -9, -9, -9, -9))
     assert AIRBORNE_SPECTRA_THIRDS["Ctr"].values == tuple(
         float(v) for v in (-20, -20, -18, -16, -15, -14, -13, -12, -11, -9, -8, -9, -10, -11, -13, -15))
-    # Octave main range, facts sheet 4.3 [M-high].
+    # ISO 717-1 octave spectra, main range: from memory (high confidence), and equal to the rounded
+    # energy sums of the thirds (next test).
     assert AIRBORNE_SPECTRA_OCTAVES["C"].values == (-21.0, -14.0, -8.0, -5.0, -4.0)
     assert AIRBORNE_SPECTRA_OCTAVES["Ctr"].values == (-14.0, -10.0, -7.0, -4.0, -6.0)
 
 
 @pytest.mark.parametrize("name", ["C", "C50-3150", "C50-5000", "C100-5000"])
 def test_spectrum_no_1_sums_to_0_db_in_every_range(name):
-    # Facts sheet 4.3 [C]: spectrum No. 1 (A-weighted pink noise) is normalised to 0 dB overall in
-    # every range, +-0.02 dB after rounding the bands to whole decibels. This is what places the
+    # ISO 717-1 spectrum No. 1 (A-weighted pink noise), analytic check: it is normalised to 0 dB
+    # overall in every range, +-0.02 dB after rounding the bands to whole decibels. This is what places the
     # enlarged-range columns (from memory) 1 dB below the 100-3150 Hz column.
     spectrum = AIRBORNE_SPECTRA_THIRDS[name]
     assert abs(10 * math.log10(np.sum(10 ** (spectrum.as_array() / 10)))) <= 0.02
@@ -91,8 +96,8 @@ def test_spectrum_no_1_sums_to_0_db_in_every_range(name):
 
 @pytest.mark.parametrize("name", sorted(AIRBORNE_SPECTRA_OCTAVES))
 def test_octave_spectra_are_rounded_energy_sums_of_the_thirds(name):
-    # Facts sheet 4.3 [C]: every octave value is the energy sum of its three one-third-octave values,
-    # rounded to a whole decibel.
+    # ISO 717-1 octave spectra, analytic check: every octave value is the energy sum of its three
+    # one-third-octave values, rounded to a whole decibel.
     third = AIRBORNE_SPECTRA_THIRDS[name]
     for octave_hz, value in zip(AIRBORNE_SPECTRA_OCTAVES[name].nominal_hz, AIRBORNE_SPECTRA_OCTAVES[name].values):
         energy = sum(10 ** (third.at(f) / 10) for f in thirds_of_octave(octave_hz))
@@ -100,7 +105,7 @@ def test_octave_spectra_are_rounded_energy_sums_of_the_thirds(name):
 
 
 def test_enlarged_ranges_cover_the_right_bands():
-    # ISO 717-1 Annex B names (facts sheet 4.3): the band range is in the term's name.
+    # ISO 717-1 Annex B names (from memory): the band range is in the term's name.
     assert AIRBORNE_SPECTRA_THIRDS["C50-5000"].nominal_hz == THIRD_OCTAVES_50_5000_HZ
     assert AIRBORNE_SPECTRA_THIRDS["Ctr,100-5000"].nominal_hz == nominal_bands_hz(100, 5000)
     assert AIRBORNE_SPECTRA_OCTAVES["C50-5000"].nominal_hz == OCTAVES_63_4000_HZ
@@ -118,7 +123,8 @@ def test_reference_curve_itself_rates_54_db():
 
 
 def test_reference_curve_plus_2_db_rates_56_and_one_tenth_less_rates_55():
-    # Facts sheet 14: reference + 2 dB in every band has exactly 32.0 dB at 56, so Rw = 56.
+    # ISO 717-1 32.0 dB rule (analytic): reference + 2 dB in every band has exactly 32.0 dB at 56,
+    # so Rw = 56 (acoustic-toolbox 0.2.2 rates this 55, as its loop rejects exactly 32.0 dB).
     plus_2 = np.array(ISO717_1_THIRDS) + 2.0
     assert rate_iso717_1(thirds(plus_2)).single_number_db == 56
     # Lower one band by 0.1 dB: 32.1 dB at 56 is too much, so 55 (sum 16 x 1 + 0.1 = 16.1 dB).
@@ -142,10 +148,11 @@ def test_impact_reference_curve_rates_58_in_thirds_and_octaves():
     assert octave.shifted_reference.at(500) == 63.0
 
 
-# --- facts sheet section 12 vectors -----------------------------------------------------------------
+# --- hand-rated vectors (analytic; worked in the comments) -------------------------------------------
 
 def test_vector_1_rates_22_with_c_minus_2_and_ctr_minus_4():
-    # Facts sheet 12 [C; Rw and X_A also V: python-acoustics tests]. By hand, curve at 22 (shift -30):
+    # Analytic, rated by hand; Rw and X_A also checked against python-acoustics test_building.py.
+    # By hand, curve at 22 (shift -30):
     # curve 3 6 9 12 15 18 21 22 23 24 25 26 26 26 26 26; data 10 11 12 13 15 18 20 20 25 22 18 15 20 25 28 30
     # below: 0 0 0 0 0 0 1 2 0 2 7 11 6 1 0 0 = 30.0 <= 32; at 23: 0 0 0 0 1 1 2 3 0 3 8 12 7 2 0 0 = 39.0.
     # X_A1 = 19.657 -> C = round(19.657 - 22) = -2; X_A2 = 18.036 -> Ctr = round(-3.96) = -4.
@@ -156,7 +163,7 @@ def test_vector_1_rates_22_with_c_minus_2_and_ctr_minus_4():
     # Unrounded Rw + C = X_A1, Rw + Ctr = X_A2 (python-acoustics tests: 19.657473, 18.036283).
     assert rating.adapted_precise_db["C"] == pytest.approx(19.657473, abs=1e-5)
     assert rating.adapted_precise_db["Ctr"] == pytest.approx(18.036283, abs=1e-5)
-    assert rating.single_number_precise_db == 22.2    # facts sheet 12: sum 31.8 dB at 22.2
+    assert rating.single_number_precise_db == 22.2    # analytic: sum 31.8 dB at 22.2
     assert rating.unfavourable_deviation.values == tuple(
         float(v) for v in (0, 0, 0, 0, 0, 0, 1, 2, 0, 2, 7, 11, 6, 1, 0, 0))
     assert rating.shifted_reference.values == tuple(float(v - 30) for v in ISO717_1_THIRDS)
@@ -166,7 +173,7 @@ def test_vector_1_rates_22_with_c_minus_2_and_ctr_minus_4():
 
 
 def test_vector_2_rates_56_and_its_octave_version_55():
-    # Facts sheet 12 [C]: curve at 56 is 37 40 43 46 49 52 55 56 57 58 59 60 60 60 60 60, deficits
+    # Analytic, rated by hand: curve at 56 is 37 40 43 46 49 52 55 56 57 58 59 60 60 60 60 60, deficits
     # 0 0 1.5 3.0 3.8 4.2 4.9 3.7 3.0 2.4 1.8 1.9 1.0 0 0 0 = 31.2; at 57: 44.1.
     # X_A1 = 54.17 -> C = round(-1.83) = -2; X_A2 = 50.57 -> Ctr = round(-5.43) = -5.
     rating = rate_iso717_1(thirds([38.2, 40.1, 41.5, 43.0, 45.2, 47.8, 50.1, 52.3, 54.0, 55.6, 57.2, 58.1,
@@ -182,7 +189,7 @@ def test_vector_2_rates_56_and_its_octave_version_55():
 
 
 def test_vector_3_rates_48_and_48_7_in_tenths():
-    # Facts sheet 12 [C]: deficits at 48: 3.7 3.1 1.6 0.2 0 0 0 0 0 0 0 0 3.3 7.1 4.7 0.4 = 24.1
+    # Analytic, rated by hand: deficits at 48: 3.7 3.1 1.6 0.2 0 0 0 0 0 0 0 0 3.3 7.1 4.7 0.4 = 24.1
     # (34.3 at 49); C = -2, Ctr = -6. 0.1 dB steps: 31.0 at 48.7, 32.1 at 48.8 -> 48.7.
     rating = rate_iso717_1(thirds([25.3, 28.9, 33.4, 37.8, 41.0, 44.6, 47.2, 49.5, 51.8, 53.0, 54.1, 53.2,
                                    48.7, 44.9, 47.3, 51.6]))
@@ -195,7 +202,8 @@ IMPACT_VECTOR = (58.1, 59.0, 59.6, 60.2, 60.8, 61.0, 61.4, 61.1, 60.5, 59.8, 58.
 
 
 def test_impact_vector_rates_59_with_ci_minus_3():
-    # Facts sheet 12 [C]: curve at 59 is 61 61 61 61 61 61 60 59 58 57 56 53 50 47 44 41; excess
+    # Analytic, rated by hand (ISO 717-2 shift rule): curve at 59 is
+    # 61 61 61 61 61 61 60 59 58 57 56 53 50 47 44 41; excess
     # 0 0 0 0 0 0 1.4 2.1 2.5 2.8 2.7 3.9 4.2 3.8 2.9 2.0 = 28.3 <= 32 (at 58: 40.3).
     # Ln,sum(100-2500) = 70.89 -> CI = round(70.89 - 15 - 59) = -3.
     rating = rate_iso717_2(thirds(IMPACT_VECTOR, "L'nT"))
@@ -209,7 +217,8 @@ def test_impact_vector_rates_59_with_ci_minus_3():
 
 
 def test_impact_vector_with_low_bands_gives_ci_50_2500():
-    # Facts sheet 12 [C]: 50/63/80 Hz = 55.0, 56.5, 57.2 -> Ln,sum(50-2500) = 71.32 -> CI,50-2500 = -3.
+    # Analytic (ISO 717-2: CI,50-2500 = Ln,sum(50-2500) - 15 - Ln,w): 50/63/80 Hz = 55.0, 56.5, 57.2
+    # -> Ln,sum(50-2500) = 71.32 -> CI,50-2500 = -3.
     spectrum = thirds((55.0, 56.5, 57.2) + IMPACT_VECTOR, "L'n", nominal_bands_hz(50, 3150))
     rating = rate_iso717_2(spectrum)
     assert rating.single_number_db == 59
@@ -218,9 +227,10 @@ def test_impact_vector_with_low_bands_gives_ci_50_2500():
 
 
 def test_impact_octave_rating_subtracts_5_db():
-    # Facts sheet 12 [C]: octave energy sums 63.7 65.5 65.8 63.4 56.4; curve at 65 (500 Hz) is
+    # Analytic, rated by hand; the octave rule "500 Hz value minus 5 dB" is ISO 717-2, from memory
+    # (high confidence). Octave energy sums 63.7 65.5 65.8 63.4 56.4; curve at 65 (500 Hz) is
     # 67 67 65 62 49, excess 0 0 0.8 1.4 7.4 = 9.6 <= 10 (at 64: 14.6); Ln,w = 65 - 5 = 60.
-    # CI (octaves 125-2000, facts sheet 4.4 from memory): sum 70.9 -> round(70.9 - 15 - 60) = -4.
+    # CI (octaves 125-2000, ISO 717-2, from memory): sum 70.9 -> round(70.9 - 15 - 60) = -4.
     rating = rate_iso717_2(octaves([63.7, 65.5, 65.8, 63.4, 56.4], "L'nT"))
     assert (rating.single_number_db, rating.deviation_sum_db) == (60, 9.6)
     assert rating.shifted_reference.at(500) == 65.0
@@ -288,7 +298,8 @@ def test_flat_spectrum_rates_at_its_own_level_with_c_and_ctr_zero(level_db):
     # Analytic (computed): with X_i = K in every band the curve at K lies below the data up to
     # 500 Hz and 1 2 3 4 4 4 4 4 dB above it from 630 Hz: 26 dB; at K + x (0 <= x <= 1) the sum is
     # 26 + 9x, so the 0.1 dB evaluation is K + 0.6 (31.4; 32.3 at K + 0.7) and Rw = K. Spectra No. 1
-    # and No. 2 sum to +0.013 and -0.015 dB (facts sheet 4.3), so X_A = K -+ 0.0x and C = Ctr = 0.
+    # and No. 2 sum to +0.013 and -0.015 dB (analytic, from the published values), so X_A = K -+ 0.0x
+    # and C = Ctr = 0.
     rating = rate_iso717_1(thirds([level_db] * 16))
     assert rating.single_number_db == level_db
     assert rating.deviation_sum_db == 26.0
@@ -299,14 +310,15 @@ def test_flat_spectrum_rates_at_its_own_level_with_c_and_ctr_zero(level_db):
 # --- rounding, enlarged ranges, bounds, errors, value semantics -------------------------------------
 
 def test_band_values_are_rounded_to_one_decimal_before_rating():
-    # Facts sheet 4.2 / 4.5: bands are used to 0.1 dB. 0.04 dB below the reference curve + 2 rounds
-    # back onto it, so the rating stays 56 (unrounded it would be 32.64 dB at 56 -> 55).
+    # ISO 717-1: bands are used to 0.1 dB (from memory; python-acoustics also rounds to 0.1 dB).
+    # 0.04 dB below the reference curve + 2 rounds back onto it, so the rating stays 56 (unrounded it would be 32.64 dB at 56 -> 55).
     nearly = np.array(ISO717_1_THIRDS) + 2.0 - 0.04
     assert rate_iso717_1(thirds(nearly)).single_number_db == 56
 
 
 def test_round_half_up_is_the_documented_tie_rule():
-    # Facts sheet 4.5 [CP]: exact halves go up (Python's round() would give -2 and 2).
+    # Common practice (ISO 717's rule for exact halves not verified): exact halves go up
+    # (Python's round() would give -2 and 2).
     assert [round_half_up(v) for v in (-2.5, 2.5, -0.49, 0.5)] == [-2, 3, 0, 1]
 
 
@@ -323,7 +335,8 @@ def test_enlarged_terms_appear_only_when_their_bands_are_measured():
 
 
 def test_limited_bands_make_the_airborne_rating_a_lower_bound():
-    # Facts sheet 1.8: background-limited airborne bands are lower bounds, and so is the rating [CP].
+    # ISO 16283-1 background-correction rule (from memory): background-limited airborne bands are
+    # lower bounds, and so is the rating (common practice).
     levels = [30.0, 32.0, 34.0] + list(np.array(ISO717_1_THIRDS, dtype=float)) + [56.0, 56.0]
     spectrum = thirds(levels, "DnT", THIRD_OCTAVES_50_5000_HZ)
     assert rate_iso717_1(spectrum).bound is None
@@ -341,7 +354,8 @@ def test_limited_bands_make_the_airborne_rating_a_lower_bound():
 
 
 def test_limited_bands_make_the_impact_rating_an_upper_bound():
-    # Facts sheet 1.8: limited impact levels are upper bounds, and so is L'nT,w.
+    # ISO 16283-2 background-correction rule (from memory): limited impact levels are upper bounds,
+    # and so is L'nT,w (common practice).
     limited = (False,) * 15 + (True,)
     rating = rate_iso717_2(thirds(IMPACT_VECTOR, "L'nT"), limited=limited)
     assert rating.bound == "upper"

@@ -229,5 +229,6 @@ def test_example_requirements_are_labelled_examples_and_parse():
     for label, text in EXAMPLE_REQUIREMENTS.items():
         assert label.startswith("EXAMPLE ONLY") and "from memory" in label
         parse_requirement(text)
-    # facts sheet 11 (from memory, high confidence): England & Wales new-build 45 / 62
+    # Approved Document E (England & Wales, 2003 edition with amendments), purpose-built dwellings
+    # (from memory, high confidence): new-build 45 / 62
     assert set(EXAMPLE_REQUIREMENTS.values()) >= {"DnT,w + Ctr >= 45", "L'nT,w <= 62"}

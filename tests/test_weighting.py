@@ -13,8 +13,9 @@ from fieldtl.analysis.weighting import (a_weighting_db, c_weighting_db, exponent
 from fieldtl.errors import InputError
 
 # IEC 61672-1:2013 weighting table at the nominal frequencies 31.5, 50, 63, 100, 125, 160, 250, 500,
-# 1000, 2000, 2500, 4000, 5000, 8000, 10000 Hz (facts sheet 8, [V] python-acoustics
-# iec_61672_1_2013.csv and pyfar). x is the base-ten band number: exact f = 1000 * 10^(x/10).
+# 1000, 2000, 2500, 4000, 5000, 8000, 10000 Hz (checked against python-acoustics
+# iec_61672_1_2013.csv and pyfar constants/frequency_weighting.py). x is the base-ten band
+# number: exact f = 1000 * 10^(x/10).
 TABLE_X = (-15, -13, -12, -10, -9, -8, -6, -3, 0, 3, 4, 6, 7, 9, 10)
 TABLE_A_DB = (-39.4, -30.2, -26.2, -19.1, -16.1, -13.4, -8.6, -3.2, 0.0, 1.2, 1.3, 1.0, 0.5, -1.1, -2.5)
 TABLE_C_DB = (-3.0, -1.3, -0.8, -0.3, -0.2, -0.1, 0.0, 0.0, 0.0, -0.2, -0.3, -0.8, -1.3, -3.0, -4.4)
@@ -24,20 +25,21 @@ SAMPLE_RATES_HZ = (44_100.0, 48_000.0, 96_000.0)
 
 
 def round_half_up(value_db: float) -> float:
-    # the table is rounded to 0.1 dB; half-up, as the facts sheet reproduces it
+    # the IEC 61672-1:2013 table is rounded to 0.1 dB; half-up reproduces it (computed)
     return math.floor(value_db * 10 + 0.5) / 10
 
 
 @pytest.mark.parametrize("weighting", ["A", "C"])
 def test_analytic_curve_reproduces_the_iec_table(weighting):
-    # facts sheet 8: the rounded poles at the exact base-ten frequencies reproduce every entry
+    # IEC 61672-1:2013 Annex E formulas (checked against python-acoustics and pyfar): the rounded
+    # poles 20.60, 107.7, 737.9, 12194 Hz at the exact base-ten frequencies reproduce every entry
     computed = [round_half_up(v) for v in weighting_db(weighting, EXACT_HZ)]
     assert computed == pytest.approx(TABLES[weighting], abs=1e-9)
 
 
 def test_curves_are_zero_at_1_khz():
     # IEC 61672-1: both weightings are 0.0 dB at the 1 kHz reference (A1000 / C1000 normalise them;
-    # the facts sheet computes A(1000 Hz) = +0.0001 dB with these constants)
+    # the Annex E formula gives A(1000 Hz) = +0.0001 dB with these constants, computed)
     assert a_weighting_db(1000.0) == pytest.approx(0.0, abs=2e-4)
     assert c_weighting_db(1000.0) == pytest.approx(0.0, abs=2e-4)
 
@@ -45,7 +47,7 @@ def test_curves_are_zero_at_1_khz():
 @pytest.mark.parametrize("sample_rate_hz", SAMPLE_RATES_HZ)
 @pytest.mark.parametrize("weighting", ["A", "C"])
 def test_digital_filter_matches_the_table(weighting, sample_rate_hz):
-    # IEC 61672-1 table (facts sheet 8) to its own rounding (0.05 dB) plus 0.01 dB for the digital design
+    # IEC 61672-1:2013 table to its own rounding (0.05 dB) plus 0.01 dB for the digital design
     _, response = signal.sosfreqz(weighting_sos(weighting, sample_rate_hz=sample_rate_hz), worN=EXACT_HZ,
                                   fs=sample_rate_hz)
     assert 20 * np.log10(np.abs(response)) == pytest.approx(TABLES[weighting], abs=0.06)
