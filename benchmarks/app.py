@@ -1,0 +1,137 @@
+"""The app's response times in a real browser (Debian's chromium through Playwright, phone viewport).
+
+Starts ``fieldtl app`` on a fresh data folder (the invented demo is imported and measured in the
+background), walks the demo, then restarts the server on the same folder and walks again, as a
+tester reopening the app on site would. Each figure is the wall time from the action (page opened,
+button clicked, file chosen) until what it should show is visible:
+
+- first page: the Projects page after the server answers its health check;
+- demo test: the Takes page with every take's line;
+- results: the verdict; later pages: Takes and Results again, and the Report page opened by address;
+- new take: an uploaded recording listed with its findings;
+- PDF: the download button after "Make the PDF report".
+
+Targets (issue 10, not asserted): first page after a restart under 3 s; opening the demo test and
+every later page under 1.5 s; a new take under 1 s; PDF under 3 s. Uses the server helpers of the
+browser tests (tests/data/live_server.py). Run: ``python benchmarks/app.py``.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+import re
+import shutil
+import sys
+import tempfile
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+import soundfile
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT / "tests" / "data"))
+
+from live_server import free_port, start_server, stop_server, wait_until_healthy  # noqa: E402
+
+PHONE = {"width": 390, "height": 844}
+TIMEOUT_MS = 180_000
+
+
+def timed(action: Callable[[], object], until: Callable[[], object]) -> float:
+    start = time.perf_counter()
+    action()
+    until()
+    return time.perf_counter() - start
+
+
+def serve(data_dir: Path):
+    port = free_port()
+    env = {k: v for k, v in os.environ.items() if k not in ("FIELDTL_ACCESS_CODE", "FIELDTL_NO_DEMO")}
+    server = start_server([sys.executable, "-m", "fieldtl.cli", "app", "--port", str(port), "--data-dir",
+                           str(data_dir)], cwd=ROOT, env=env)
+    url = f"http://127.0.0.1:{port}"
+    wait_until_healthy(url, timeout_s=120)
+    return server, url
+
+
+def new_recording() -> bytes:
+    """Six seconds of invented pink-ish noise (never stored before, so not refused as a duplicate)."""
+    rng = np.random.default_rng(int(time.time()))
+    samples = np.cumsum(rng.standard_normal(48_000 * 6)) * 1e-4
+    samples -= np.convolve(samples, np.ones(480) / 480, mode="same")
+    buffer = io.BytesIO()
+    soundfile.write(buffer, 0.1 * samples / np.max(np.abs(samples)), 48_000, format="WAV", subtype="PCM_24")
+    return buffer.getvalue()
+
+
+def walk(page, url: str, figures: dict[str, float], prefix: str, *, upload: bool) -> None:
+    heading = lambda name: page.get_by_role("heading", name=name, exact=True).wait_for(timeout=TIMEOUT_MS)  # noqa: E731
+    toggles = page.get_by_text("Use this take")
+
+    def takes_listed() -> None:
+        heading("Takes")
+        toggles.first.wait_for(timeout=TIMEOUT_MS)
+
+    verdict = page.get_by_text(re.compile(r"(PASS|FAIL|UNDECIDED) against"))
+    figures[f"{prefix} first page"] = timed(lambda: page.goto(url), lambda: heading("Projects"))
+    figures[f"{prefix} opening the demo test"] = timed(
+        lambda: page.get_by_role("button", name=re.compile("INVENTED DEMO")).click(timeout=TIMEOUT_MS), takes_listed)
+    figures[f"{prefix} results"] = timed(lambda: page.get_by_text("See the results").first.click(),
+                                         lambda: verdict.first.wait_for(timeout=TIMEOUT_MS))
+    query = page.url.partition("?")[2]
+    figures[f"{prefix} takes again"] = timed(lambda: page.goto(f"{url}/takes?{query}"), takes_listed)
+    figures[f"{prefix} results again"] = timed(lambda: page.get_by_text("See the results").first.click(),
+                                               lambda: verdict.first.wait_for(timeout=TIMEOUT_MS))
+    figures[f"{prefix} report page"] = timed(lambda: page.goto(f"{url}/report?{query}"), lambda: heading("Report and export"))
+    figures[f"{prefix} PDF"] = timed(
+        lambda: page.get_by_role("button", name="Make the PDF report").click(),
+        lambda: page.get_by_text("Download the PDF report").wait_for(timeout=TIMEOUT_MS))
+    if upload:
+        page.goto(f"{url}/takes?{query}")
+        takes_listed()
+        count = toggles.count()
+        data = new_recording()
+
+        def more_takes() -> None:
+            page.get_by_text(re.compile(r"Stored .*bench-take\.wav")).first.wait_for(timeout=TIMEOUT_MS)
+            deadline = time.monotonic() + TIMEOUT_MS / 1000
+            while toggles.count() <= count and time.monotonic() < deadline:
+                time.sleep(0.02)
+
+        figures[f"{prefix} new take listed"] = timed(
+            lambda: page.locator("input[type=file]").first.set_input_files(
+                {"name": "bench-take.wav", "mimeType": "audio/wav", "buffer": data}), more_takes)
+
+
+def main() -> None:
+    from playwright.sync_api import sync_playwright
+
+    chromium = shutil.which("chromium") or shutil.which("chromium-browser")
+    if chromium is None:
+        sys.exit("chromium is not installed (scripts/test installs Debian's chromium package)")
+    figures: dict[str, float] = {}
+    with tempfile.TemporaryDirectory(prefix="fieldtl-bench-app-") as folder, sync_playwright() as playwright:
+        browser = playwright.chromium.launch(executable_path=chromium, args=[
+            "--disable-background-networking", "--disable-component-update", "--no-first-run", "--disable-sync"])
+        try:
+            for prefix, upload in (("first start:", False), ("after a restart:", True)):
+                server, url = serve(Path(folder) / "store")
+                try:
+                    page = browser.new_page(viewport=PHONE)
+                    walk(page, url, figures, prefix, upload=upload)
+                    page.close()
+                finally:
+                    stop_server(server)
+        finally:
+            browser.close()
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"app response times in chromium at 390 x 844, load average {load:.2f}")
+    for name, seconds in figures.items():
+        print(f"{name:<40} {seconds:6.2f} s")
+
+
+if __name__ == "__main__":
+    main()
