@@ -29,11 +29,11 @@ from fieldtl.insulation.common import (
     freeze_sequences,
     low_frequency_reverberation,
     ignored_bands_rule,
-    require_positive,
     room_levels,
     to_spectrum,
     weighted_energy_mean_db,
 )
+from fieldtl.validate import AREA_M2, REVERBERATION_S, VOLUME_M3, number
 
 SourceCombination = Literal["energy", "arithmetic", "simultaneous"]
 AreaRule = Literal["smaller", "receiving", "source", "off"]
@@ -165,7 +165,8 @@ def separating_area_m2(rooms: Rooms, *, rule: AreaRule = "smaller") -> tuple[flo
     """
     if rooms.common_area_m2 is None:
         return None, "no common separating element: R' not computed, D, Dn and DnT only (ISO 16283-1, from memory)"
-    common_m2 = require_positive(rooms.common_area_m2, "common area of the separating element (m2)")
+    common_m2 = number(rooms.common_area_m2, "common area of the separating element", low=AREA_M2[0],
+                       high=AREA_M2[1], unit=" m2")
     volumes_m3 = {"smaller": min(rooms.source_volume_m3, rooms.receiving_volume_m3),
                   "receiving": rooms.receiving_volume_m3, "source": rooms.source_volume_m3}
     if rule == "off":
@@ -196,10 +197,13 @@ def airborne_insulation(measurement: AirborneMeasurement, rooms: Rooms, *,
     """
     if not measurement.positions or not measurement.positions[0].receiving_levels_db:
         raise InputError("airborne measurement: no loudspeaker positions with receiving-room levels")
-    source_m3 = require_positive(rooms.source_volume_m3, "source room volume (m3)")
-    receiving_m3 = require_positive(rooms.receiving_volume_m3, "receiving room volume (m3)")
-    t0_s = require_positive(reference_time_s, "reference time T0 (s)")
-    a0_m2 = require_positive(reference_area_m2, "reference area A0 (m2)")
+    source_m3 = number(rooms.source_volume_m3, "source room volume", low=VOLUME_M3[0], high=VOLUME_M3[1],
+                       unit=" m3")
+    receiving_m3 = number(rooms.receiving_volume_m3, "receiving room volume", low=VOLUME_M3[0],
+                          high=VOLUME_M3[1], unit=" m3")
+    t0_s = number(reference_time_s, "reference time T0", low=REVERBERATION_S[0], high=REVERBERATION_S[1],
+                  unit=" s")
+    a0_m2 = number(reference_area_m2, "reference area A0", low=AREA_M2[0], high=AREA_M2[1], unit=" m2")
     first = measurement.positions[0].receiving_levels_db[0]
     bands = analysis_bands_hz(first)
     source = room_levels([p.source_levels_db for p in measurement.positions],

@@ -151,14 +151,6 @@ def freeze_sequences(instance: object, *names: str) -> None:
         object.__setattr__(instance, name, tuple(getattr(instance, name)))
 
 
-def require_positive(value: float, what: str) -> float:
-    """Return ``value`` as float, or raise InputError naming ``what`` unless finite and > 0."""
-    number = float(value)
-    if not np.isfinite(number) or number <= 0.0:
-        raise InputError(f"{what} must be a positive number, got {value!r}")
-    return number
-
-
 def analysis_bands_hz(first: BandSpectrum) -> tuple[float, ...]:
     """The bands evaluated: those of ``first`` inside 50-5000 Hz, which must cover 100-3150 Hz."""
     if first.fraction != 3:

@@ -28,11 +28,11 @@ from fieldtl.insulation.common import (
     freeze_sequences,
     low_frequency_reverberation,
     ignored_bands_rule,
-    require_positive,
     room_levels,
     to_spectrum,
     weighted_energy_mean_db,
 )
+from fieldtl.validate import AREA_M2, REVERBERATION_S, VOLUME_M3, number
 
 
 @dataclass(frozen=True, slots=True)
@@ -113,9 +113,11 @@ def impact_insulation(measurement: ImpactMeasurement, *, receiving_volume_m3: fl
     """
     if not measurement.positions or not measurement.positions[0].receiving_levels_db:
         raise InputError("impact measurement: no tapping positions with receiving-room levels")
-    volume_m3 = require_positive(receiving_volume_m3, "receiving room volume (m3)")
-    t0_s = require_positive(reference_time_s, "reference time T0 (s)")
-    a0_m2 = require_positive(reference_area_m2, "reference area A0 (m2)")
+    volume_m3 = number(receiving_volume_m3, "receiving room volume", low=VOLUME_M3[0], high=VOLUME_M3[1],
+                       unit=" m3")
+    t0_s = number(reference_time_s, "reference time T0", low=REVERBERATION_S[0], high=REVERBERATION_S[1],
+                  unit=" s")
+    a0_m2 = number(reference_area_m2, "reference area A0", low=AREA_M2[0], high=AREA_M2[1], unit=" m2")
     first = measurement.positions[0].receiving_levels_db[0]
     bands = analysis_bands_hz(first)
     room = room_levels([p.receiving_levels_db for p in measurement.positions],
