@@ -65,8 +65,11 @@ class Recording:
         return self.frames / self.sample_rate_hz
 
 
-def open_recording(path: str | Path, *, channel: int = 0) -> Recording:
+def open_recording(path: str | Path, *, channel: int = 0, min_sample_rate_hz: int = MIN_SAMPLE_RATE_HZ) -> Recording:
     """Check that ``path`` is a usable WAV/FLAC file and describe it; reads the header only.
+
+    ``min_sample_rate_hz`` lowers the floor for callers whose analysis holds at lower rates
+    (noise records from phones: A weighting needs 8 kHz).
 
     Raises InputError (one line, naming the file) for a missing, empty or non-audio file, an
     unsupported format or sample rate, a file with no samples, or a channel that does not exist.
@@ -88,9 +91,9 @@ def open_recording(path: str | Path, *, channel: int = 0) -> Recording:
     if info.subtype not in SUPPORTED_SUBTYPES:
         raise InputError(f"{name}: sample format {info.subtype} is not supported; use 16/24/32-bit "
                          "integer or 32/64-bit float")
-    if not MIN_SAMPLE_RATE_HZ <= info.samplerate <= MAX_SAMPLE_RATE_HZ:
+    if not min_sample_rate_hz <= info.samplerate <= MAX_SAMPLE_RATE_HZ:
         raise InputError(f"{name}: sample rate {info.samplerate} Hz is outside "
-                         f"{MIN_SAMPLE_RATE_HZ}-{MAX_SAMPLE_RATE_HZ} Hz")
+                         f"{min_sample_rate_hz}-{MAX_SAMPLE_RATE_HZ} Hz")
     if info.frames <= 0:
         raise InputError(f"{name}: contains no audio samples")
     missing_bytes = _wav_missing_bytes(file) if info.format in ("WAV", "WAVEX") else 0
