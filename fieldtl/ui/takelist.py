@@ -37,8 +37,11 @@ def say(kind: str, text: str) -> None:
 
 
 def show_messages() -> None:
-    for kind, text in st.session_state.get(MESSAGES, []):
-        {"success": st.success, "warning": st.warning, "error": st.error}.get(kind, st.info)(text)
+    # Always one container, however many messages: the widgets below keep their place in the page,
+    # so the recorder's frame is not drawn anew (and does not lose its state) when a message appears.
+    with st.container():
+        for kind, text in st.session_state.get(MESSAGES, []):
+            {"success": st.success, "warning": st.warning, "error": st.error}.get(kind, st.info)(text)
 
 
 def new_batch() -> None:
