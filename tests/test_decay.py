@@ -171,7 +171,7 @@ def _single_band_decay(envelope, nominal_hz=1000.0, noise_below_db=None, seed=0)
         # Noise only inside the band's edges, its mean square 10^(-x/10) below the mode's initial one (1/2).
         low_hz, high_hz = band_edges_hz(nominal_hz)
         response = response + white_noise(time_s.size / FS, sample_rate_hz=FS, low_hz=low_hz, high_hz=high_hz,
-                                           level_db_fs=10 * math.log10(0.5) - noise_below_db, seed=seed)
+                                           level_dbfs=10 * math.log10(0.5) - noise_below_db, seed=seed)
     return reverberation_from_impulse_response(response, sample_rate_hz=FS, nominal_hz=[nominal_hz]).bands[0]
 
 
@@ -251,7 +251,7 @@ def interrupted_noise_recording(t_s, *, odd_bands, interruptions=4, seed=0, nois
     room = _resonator_room(t_s, rng.standard_normal(gate.size) * gate, odd_bands)
     steady_power = np.mean(room[gate > 0] ** 2)
     direct = white_noise(gate.size / FS, sample_rate_hz=FS, low_hz=10_000.0, high_hz=20_000.0, seed=seed + 1,
-                         level_db_fs=-20.0)
+                         level_dbfs=-20.0)
     direct *= math.sqrt(100 * steady_power) / np.sqrt(np.mean(direct ** 2)) * gate
     background = math.sqrt(FS / 2 * 10 ** (-noise_below_db / 10)) * rng.standard_normal(room.size)
     return room + direct + background

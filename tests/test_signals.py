@@ -47,14 +47,14 @@ def test_pink_noise_has_equal_energy_per_octave_band():
 
 
 def test_noise_level_band_limits_and_seed():
-    noise = pink_noise(2.0, sample_rate_hz=FS, level_db_fs=-23.0, low_hz=100.0, high_hz=5000.0, seed=7)
+    noise = pink_noise(2.0, sample_rate_hz=FS, level_dbfs=-23.0, low_hz=100.0, high_hz=5000.0, seed=7)
     assert 20 * math.log10(np.sqrt(np.mean(noise ** 2))) == pytest.approx(-23.0, abs=1e-9)
     spectrum = np.abs(np.fft.rfft(noise))
     freq_hz = np.fft.rfftfreq(noise.size, 1 / FS)
     assert np.all(spectrum[(freq_hz < 100.0) | (freq_hz > 5000.0)] < 1e-9 * spectrum.max())
-    assert np.array_equal(noise, pink_noise(2.0, sample_rate_hz=FS, level_db_fs=-23.0, low_hz=100.0,
+    assert np.array_equal(noise, pink_noise(2.0, sample_rate_hz=FS, level_dbfs=-23.0, low_hz=100.0,
                                             high_hz=5000.0, seed=7))
-    assert not np.array_equal(noise, pink_noise(2.0, sample_rate_hz=FS, level_db_fs=-23.0, low_hz=100.0,
+    assert not np.array_equal(noise, pink_noise(2.0, sample_rate_hz=FS, level_dbfs=-23.0, low_hz=100.0,
                                                 high_hz=5000.0, seed=8))
 
 
@@ -69,17 +69,17 @@ def test_fades_start_and_end_at_zero_and_never_raise_the_level():
 def test_noise_that_would_clip_raises_instead():
     # Gaussian noise has a crest factor well above 3 dB, so 0 dB FS RMS must clip.
     with pytest.raises(InputError, match="would clip"):
-        pink_noise(1.0, sample_rate_hz=FS, level_db_fs=0.0, seed=1)
+        pink_noise(1.0, sample_rate_hz=FS, level_dbfs=0.0, seed=1)
 
 
-@pytest.mark.parametrize("level_db_fs, clips", [(-3.0, True), (-3.02, False)])
-def test_sweep_level_limit_is_the_sine_crest_factor(level_db_fs, clips):
+@pytest.mark.parametrize("level_dbfs, clips", [(-3.0, True), (-3.02, False)])
+def test_sweep_level_limit_is_the_sine_crest_factor(level_dbfs, clips):
     # A sine's peak is √2 × RMS: 3.0103 dB (analytic), so the highest RMS level is -3.0103 dB FS.
     if clips:
         with pytest.raises(InputError, match="would clip"):
-            SweepSpec(1.0, level_db_fs=level_db_fs)
+            SweepSpec(1.0, level_dbfs=level_dbfs)
     else:
-        sweep = exponential_sweep(SweepSpec(1.0, level_db_fs=level_db_fs, fade_in_s=0.0, fade_out_s=0.0))
+        sweep = exponential_sweep(SweepSpec(1.0, level_dbfs=level_dbfs, fade_in_s=0.0, fade_out_s=0.0))
         assert np.max(np.abs(sweep)) <= 1.0
 
 

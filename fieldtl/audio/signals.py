@@ -56,21 +56,21 @@ def checked_audio(samples: np.ndarray, *, sample_rate_hz: float, source_name: st
     return array
 
 
-def pink_noise(duration_s: float, *, sample_rate_hz: float = 48_000.0, level_db_fs: float = -20.0,
+def pink_noise(duration_s: float, *, sample_rate_hz: float = 48_000.0, level_dbfs: float = -20.0,
                low_hz: float = 20.0, high_hz: float | None = None, fade_in_s: float = 0.0,
                fade_out_s: float = 0.0, seed: int | None = None) -> np.ndarray:
     """Gaussian noise whose power spectral density falls 3 dB per octave (equal energy per band).
 
     Shaped in the frequency domain, so the signal loops without a click and has no energy
-    outside ``low_hz``..``high_hz`` (``None``: up to half the sample rate). ``level_db_fs`` is
+    outside ``low_hz``..``high_hz`` (``None``: up to half the sample rate). ``level_dbfs`` is
     the RMS before the fades. Raises InputError if that level would clip.
     """
     return _shaped_noise("pink noise", duration_s, -0.5, sample_rate_hz=sample_rate_hz,
-                         level_db_fs=level_db_fs, low_hz=low_hz, high_hz=high_hz,
+                         level_dbfs=level_dbfs, low_hz=low_hz, high_hz=high_hz,
                          fade_in_s=fade_in_s, fade_out_s=fade_out_s, seed=seed)
 
 
-def white_noise(duration_s: float, *, sample_rate_hz: float = 48_000.0, level_db_fs: float = -20.0,
+def white_noise(duration_s: float, *, sample_rate_hz: float = 48_000.0, level_dbfs: float = -20.0,
                 low_hz: float = 20.0, high_hz: float | None = None, fade_in_s: float = 0.0,
                 fade_out_s: float = 0.0, seed: int | None = None) -> np.ndarray:
     """Gaussian noise with a flat power spectral density between ``low_hz`` and ``high_hz``.
@@ -78,12 +78,12 @@ def white_noise(duration_s: float, *, sample_rate_hz: float = 48_000.0, level_db
     Same options and guarantees as :func:`pink_noise`.
     """
     return _shaped_noise("white noise", duration_s, 0.0, sample_rate_hz=sample_rate_hz,
-                         level_db_fs=level_db_fs, low_hz=low_hz, high_hz=high_hz,
+                         level_dbfs=level_dbfs, low_hz=low_hz, high_hz=high_hz,
                          fade_in_s=fade_in_s, fade_out_s=fade_out_s, seed=seed)
 
 
 def _shaped_noise(name: str, duration_s: float, amplitude_exponent: float, *, sample_rate_hz: float,
-                  level_db_fs: float, low_hz: float, high_hz: float | None, fade_in_s: float,
+                  level_dbfs: float, low_hz: float, high_hz: float | None, fade_in_s: float,
                   fade_out_s: float, seed: int | None) -> np.ndarray:
     """Random-phase Gaussian spectrum with amplitude ∝ f^exponent inside the band, then RMS-scaled."""
     top_hz = sample_rate_hz / 2 if high_hz is None else high_hz
@@ -101,11 +101,11 @@ def _shaped_noise(name: str, duration_s: float, amplitude_exponent: float, *, sa
     gain = np.zeros(frequency_hz.size)
     gain[in_band] = frequency_hz[in_band] ** amplitude_exponent   # pink: |X|² ∝ 1/f, -3 dB per octave
     samples = fft.irfft(spectrum * gain, n=n_samples)
-    samples *= 10.0 ** (level_db_fs / 20.0) / np.sqrt(np.mean(samples ** 2))
+    samples *= 10.0 ** (level_dbfs / 20.0) / np.sqrt(np.mean(samples ** 2))
     peak = float(np.max(np.abs(samples)))
     if peak > 1.0:
-        highest_db = level_db_fs - 20.0 * math.log10(peak)
-        raise InputError(f"{name} at {level_db_fs:g} dB FS RMS would clip (peak {20 * math.log10(peak):+.1f} dB "
+        highest_db = level_dbfs - 20.0 * math.log10(peak)
+        raise InputError(f"{name} at {level_dbfs:g} dB FS RMS would clip (peak {20 * math.log10(peak):+.1f} dB "
                          f"re full scale); use {math.floor(highest_db * 10) / 10:g} dB FS RMS or lower")
     return _apply_fades(samples, fade_in_s, fade_out_s, sample_rate_hz)
 
@@ -114,7 +114,7 @@ def _shaped_noise(name: str, duration_s: float, amplitude_exponent: float, *, sa
 class SweepSpec:
     """An exponential sine sweep, described fully enough to regenerate it sample for sample.
 
-    ``level_db_fs`` is the RMS of the unfaded sweep (its peak is 3.01 dB higher), so it must be
+    ``level_dbfs`` is the RMS of the unfaded sweep (its peak is 3.01 dB higher), so it must be
     at most -3.01 dB FS. Invalid values raise InputError when the spec is created.
     """
 
@@ -122,7 +122,7 @@ class SweepSpec:
     sample_rate_hz: float = 48_000.0
     low_hz: float = 40.0
     high_hz: float = 12_500.0
-    level_db_fs: float = -10.0
+    level_dbfs: float = -10.0
     fade_in_s: float = 0.02
     fade_out_s: float = 0.005
 
@@ -131,8 +131,8 @@ class SweepSpec:
         sample_count(name, self.duration_s, self.sample_rate_hz)
         _check_band(name, self.low_hz, self.high_hz, self.sample_rate_hz)
         _check_fades(name, self.fade_in_s, self.fade_out_s, self.duration_s)
-        if not math.isfinite(self.level_db_fs) or self.level_db_fs + SINE_CREST_DB > 0.0:
-            raise InputError(f"sweep at {self.level_db_fs:g} dB FS RMS would clip: a sine's peak is 3.01 dB "
+        if not math.isfinite(self.level_dbfs) or self.level_dbfs + SINE_CREST_DB > 0.0:
+            raise InputError(f"sweep at {self.level_dbfs:g} dB FS RMS would clip: a sine's peak is 3.01 dB "
                              f"above its RMS, so use -3.1 dB FS RMS or lower")
 
     @property
@@ -154,7 +154,7 @@ def exponential_sweep(spec: SweepSpec, *, silence_s: float = 0.0) -> np.ndarray:
     n_samples = round(spec.duration_s * spec.sample_rate_hz)
     time_s = np.arange(n_samples) / spec.sample_rate_hz
     phase_rad = 2.0 * math.pi * spec.low_hz * spec.rate_constant_s * np.expm1(time_s / spec.rate_constant_s)
-    sweep = math.sqrt(2.0) * 10.0 ** (spec.level_db_fs / 20.0) * np.sin(phase_rad)
+    sweep = math.sqrt(2.0) * 10.0 ** (spec.level_dbfs / 20.0) * np.sin(phase_rad)
     sweep = _apply_fades(sweep, spec.fade_in_s, spec.fade_out_s, spec.sample_rate_hz)
     return np.concatenate([sweep, np.zeros(round(silence_s * spec.sample_rate_hz))])
 
