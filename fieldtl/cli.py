@@ -368,14 +368,14 @@ def _run_signal(args: argparse.Namespace) -> int:
         duration_s = 10.0 if args.seconds == 30.0 else args.seconds
         # Default fades, exactly as fieldtl.measure.sweep_from_spec rebuilds the sweep for deconvolution.
         spec = SweepSpec(duration_s=duration_s, sample_rate_hz=args.sample_rate_hz, low_hz=args.low_hz,
-                         high_hz=args.high_hz, level_db_fs=args.level_dbfs)
+                         high_hz=args.high_hz, level_dbfs=args.level_dbfs)
         samples = exponential_sweep(spec, silence_s=3.0)
         print(f"sweep {spec.low_hz:g}-{spec.high_hz:g} Hz over {spec.duration_s:g} s, then 3 s of silence; "
               f"analyse with: fieldtl decay REC.wav --method sweep --sweep-start-hz {spec.low_hz:g} "
               f"--sweep-stop-hz {spec.high_hz:g} --sweep-length-s {spec.duration_s:g}")
     else:
         make = pink_noise if args.kind == "pink" else white_noise
-        samples = make(args.seconds, sample_rate_hz=args.sample_rate_hz, level_db_fs=args.level_dbfs,
+        samples = make(args.seconds, sample_rate_hz=args.sample_rate_hz, level_dbfs=args.level_dbfs,
                        low_hz=args.low_hz, high_hz=args.high_hz, fade_in_s=args.fade_s, fade_out_s=args.fade_s,
                        seed=args.seed)
         print(f"{args.kind} noise {args.low_hz:g}-{args.high_hz:g} Hz, {args.seconds:g} s at "
