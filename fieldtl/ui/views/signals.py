@@ -24,10 +24,10 @@ with common.fenced():
         try:
             if kind == "sweep":
                 samples = exponential_sweep(SweepSpec(duration_s=seconds, low_hz=low_hz, high_hz=high_hz,
-                                                      level_db_fs=level_dbfs), silence_s=3.0)
+                                                      level_dbfs=level_dbfs), silence_s=3.0)
             else:
                 make = pink_noise if kind == "pink" else white_noise
-                samples = make(seconds, level_db_fs=level_dbfs, low_hz=low_hz, high_hz=high_hz, fade_in_s=0.05,
+                samples = make(seconds, level_dbfs=level_dbfs, low_hz=low_hz, high_hz=high_hz, fade_in_s=0.05,
                                fade_out_s=0.05)
             buffer = io.BytesIO()
             write_signal_wav(buffer, samples, sample_rate_hz=48_000)
