@@ -161,7 +161,6 @@ def measure_test_takes(store: Store, test_id: int, *, on_take: TakesDone | None 
     return TestTakes(calibration, problem, outcomes)
 
 
-
 class BackgroundMeasurer:
     """Measures stored tests' takes in one background thread, so pages appear while it works.
 
@@ -180,6 +179,8 @@ class BackgroundMeasurer:
         self._store = store
         self._queue: list[int] = []
         self._status: dict[int, tuple[int, int]] = {}
+        self._stopped = False
+        self._listing = every_test              # idle only once every stored test is queued
         self._wake = threading.Condition()
         self._thread = threading.Thread(target=self._run, args=(every_test,), name="fieldtl-measure", daemon=True)
         self._thread.start()
@@ -187,7 +188,7 @@ class BackgroundMeasurer:
     def request(self, *test_ids: int) -> None:
         with self._wake:
             for test_id in test_ids:
-                if test_id not in self._status:
+                if test_id not in self._status and not self._stopped:
                     self._queue.append(test_id)
                     self._status[test_id] = (0, 0)
             self._wake.notify()
@@ -202,10 +203,18 @@ class BackgroundMeasurer:
         with self._wake:
             return self._status.get(test_id)
 
+    def stop(self) -> None:
+        """End the thread after the test it is measuring (the queue is dropped)."""
+        with self._wake:
+            self._stopped = True
+            self._queue.clear()
+            self._status.clear()
+            self._wake.notify()
+
     def idle(self) -> bool:
         """Nothing queued or being measured."""
         with self._wake:
-            return not self._status
+            return not self._status and not self._listing
 
     def _queue_every_test(self) -> None:
         for project in self._store.list_projects():
@@ -220,10 +229,14 @@ class BackgroundMeasurer:
                 self._queue_every_test()
             except Exception:  # noqa: BLE001 - a store that cannot be listed: pages measure on demand
                 pass
+            with self._wake:
+                self._listing = False
         while True:
             with self._wake:
-                while not self._queue:
+                while not self._queue and not self._stopped:
                     self._wake.wait()
+                if self._stopped:
+                    return
                 test_id = self._queue.pop(0)
 
             def done(count: int, total: int, test_id: int = test_id) -> None:
@@ -237,3 +250,5 @@ class BackgroundMeasurer:
             finally:
                 with self._wake:
                     self._status.pop(test_id, None)
+                    if self._stopped:
+                        return

@@ -13,6 +13,7 @@ import io
 import json
 import math
 import sqlite3
+import time
 from pathlib import Path
 
 import numpy as np
@@ -30,7 +31,7 @@ from fieldtl.report.export import assessment_to_json, json_text
 from fieldtl.store import MIGRATIONS, SCHEMA_VERSION, Store, TestSetup
 from fieldtl.store.survey_import import import_survey
 from fieldtl.survey import load_survey
-from fieldtl.testrun import assess_survey, assess_test, measure_test_takes, store_cache
+from fieldtl.testrun import BackgroundMeasurer, assess_survey, assess_test, measure_test_takes, store_cache
 
 DEMO = Path(__file__).resolve().parents[1] / "sample_audio"
 AIRBORNE = TestSetup(title="Invented room pair", test_type="airborne", receiving_volume_m3=38.0,
@@ -192,6 +193,25 @@ def test_two_included_calibrator_takes_follow_the_stores_rule(three_takes):
     store.add_take(test_id, data=(DEMO / "bg_p1.flac").read_bytes(), original_name="bg.flac", role="background")
     with pytest.raises(InputError, match="2 included takes with role calibration"):
         assess_test(store, test_id)                     # the assessment refuses the same way
+
+
+def test_the_background_measurer_leaves_every_take_measured_in_the_store(three_takes, monkeypatch):
+    store, test_id, two, one, decay = three_takes
+    counting = Counting(monkeypatch)
+    measurer = BackgroundMeasurer(store, every_test=True)
+    try:
+        deadline = time.monotonic() + 120
+        while not measurer.idle() and time.monotonic() < deadline:
+            time.sleep(0.05)
+        assert measurer.idle() and measurer.pending(test_id) is None
+    finally:
+        measurer.stop()
+    assert sorted(counting.files) == sorted([two.file_name, one.file_name, decay.file_name])
+    mark = len(counting.files)
+    measure_test_takes(store, test_id)                       # what a page does next: nothing to analyse
+    assert counting.since(mark) == []
+    measurer.request(test_id)                                # a stopped measurer takes no more work
+    assert measurer.pending(test_id) is None
 
 
 # --- how measurements are kept ----------------------------------------------------------------------

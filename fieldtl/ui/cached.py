@@ -22,7 +22,11 @@ DEMO_SURVEY = Path(__file__).resolve().parents[2] / "sample_audio" / "survey.tom
 DEMO_PROJECT = "Invented demo: Brackenfold House (a fictional building)"
 
 
-@st.cache_resource
+def _release(opened: tuple[Store, BackgroundMeasurer]) -> None:
+    opened[1].stop()
+
+
+@st.cache_resource(on_release=_release)
 def _opened() -> tuple[Store, BackgroundMeasurer]:
     """One store handle per server process (the Store serialises its connection with a lock), and
     one background thread measuring every stored test's takes, most recently changed project first."""
