@@ -79,3 +79,26 @@ def test_damaged_file_in_the_middle(files, capsys):
     printed = capsys.readouterr().out
     assert "ERROR file_unreadable: broken.wav:" in printed
     assert "2 event(s)" in printed          # the files either side were analysed
+
+
+def test_event_clips_only_when_switched_on(files, capsys):
+    import soundfile
+
+    from fieldtl.noise.clips import delete_clips
+
+    folder, first, second, _ = files
+    clips = folder / "clips"
+    assert main(["record", str(first), str(second), "--json", str(folder / "r.json")]) == 0
+    assert not clips.exists() and json.loads((folder / "r.json").read_text())["settings"]["event_clips_kept"] is False
+    assert main(["record", str(first), str(second), "--keep-clips", str(clips)]) == 0
+    printed = capsys.readouterr().out
+    assert "consent" in printed and "2 event clip(s) kept" in printed
+    names = sorted(p.name for p in clips.iterdir())
+    assert len(names) == 2 and names[0].startswith("event-001-20261128-2358")
+    samples, rate_hz = soundfile.read(clips / names[0])
+    # 1 s before the 3 s burst at -25 dB re full scale, the burst, 1 s after: the whole burst is inside.
+    # A sine exceeds 0.9 of its peak for 1 - (2/π) asin(0.9) = 28.7 % of the time (analytic).
+    loud = np.abs(samples) > amplitude(-25.0) * 0.9
+    expected_s = 3.0 * (1 - 2 / np.pi * np.arcsin(0.9))
+    assert rate_hz == RATE_HZ and loud.sum() / rate_hz == pytest.approx(expected_s, rel=0.01)
+    assert delete_clips(clips) == 2 and not clips.exists()

@@ -235,3 +235,16 @@ def test_corrupt_file_in_the_middle_is_a_finding(tmp_path: Path):
     codes = [(f.code, f.message.split(":")[0]) for f in record.findings]
     assert codes == [("file_unreadable", "2.wav"), ("file_unreadable", "3.wav")]
     assert all("\n" not in f.message for f in record.findings)
+
+
+def test_phone_rate_and_studio_rate_joined(tmp_path: Path):
+    # an 8 kHz phone file then a 44.1 kHz file: the record keeps the bands both can hold (2.5 kHz
+    # one-third octave is the highest whose upper edge, 2818 Hz, is below 0.38 x 8 kHz: IEC 61260-1 edges)
+    phone = write_wav(tmp_path / "phone.wav", _tone(30.0, 8000, -35.0), sample_rate_hz=8000,
+                      local_start=datetime(2026, 11, 28, 23, 0, 0))
+    studio = write_wav(tmp_path / "studio.wav", _tone(30.0, 44_100, -35.0), sample_rate_hz=44_100)
+    record = analyse_record([phone, studio], RecordSettings(zone_name="Europe/London", interval_min=1))
+    assert record.bands_hz[-1] == 2500.0 and [f.sample_rate_hz for f in record.files] == [8000, 44_100]
+    (minute,) = record.intervals
+    assert minute.laeq_db == pytest.approx(-35.0, abs=0.05)
+    assert minute.band_leq_db[record.bands_hz.index(1000.0)] == pytest.approx(-35.0, abs=0.1)

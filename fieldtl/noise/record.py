@@ -28,6 +28,7 @@ from fieldtl.noise.meter import FileMeter, record_bands_hz
 from fieldtl.noise.settings import PeriodSpec, RecordSettings, localize
 from fieldtl.validate import file_label
 
+MIN_SAMPLE_RATE_HZ = 8000     # the A-weighting filter's floor (fieldtl.analysis.weighting): phones record at 8-48 kHz
 MIN_FILE_S = 1.0             # a file shorter than this holds no usable level (our floor)
 BLOCK_S = 10.0               # seconds read per block
 JOIN_TOLERANCE_S = 0.5       # files overlapping by more than this are a finding
@@ -137,7 +138,7 @@ def file_sources(paths: Sequence[str | Path], *, channel: int = 0) -> tuple[list
     findings: list[Finding] = []
     for path in paths:
         try:
-            recording = open_recording(path, channel=channel)
+            recording = open_recording(path, channel=channel, min_sample_rate_hz=MIN_SAMPLE_RATE_HZ)
             origination = read_origination(recording.path, sample_rate_hz=recording.sample_rate_hz)
         except (InputError, OSError) as error:
             message = str(error) if isinstance(error, InputError) else f"{file_label(Path(path))}: cannot be read"
@@ -189,7 +190,8 @@ def analyse_sources(sources: Sequence[Source], settings: RecordSettings = Record
     done_frames = 0
     placed: list[PlacedFile] = []
     collector: Collector | None = None
-    bands_hz: tuple[float, ...] | None = None
+    # the bands every file can hold: a file at a lower rate limits the top band of the whole record
+    bands_hz = record_bands_hz(min(s.sample_rate_hz for s in usable), settings.band_range_hz)
     previous_end: datetime | None = None
     for source in usable:
         name = source.name
@@ -210,14 +212,6 @@ def analyse_sources(sources: Sequence[Source], settings: RecordSettings = Record
                                  "the previous file ends; placed straight after it",
                                  "Check the recorders' clocks and the order of the files."))
             file_start, start_from = previous_end, "follows"
-        file_bands = record_bands_hz(source.sample_rate_hz, settings.band_range_hz)
-        if bands_hz is None:
-            bands_hz = file_bands
-        elif file_bands != bands_hz:
-            found.append(Finding("file_unreadable", "error", f"{name}: sample rate {source.sample_rate_hz} Hz "
-                                 "gives other bands than the first file; left out",
-                                 "Record every file of a period at the same sample rate."))
-            continue
         start_s = file_start.timestamp()
         meter = FileMeter(sample_rate_hz=source.sample_rate_hz, start_s=start_s, bands_hz=bands_hz)
         if collector is None:
@@ -227,7 +221,7 @@ def analyse_sources(sources: Sequence[Source], settings: RecordSettings = Record
         frames_read, clipped_blocks = 0, 0
         try:
             for block in source.blocks():
-                if block.size and float(np.max(np.abs(block))) >= CLIP_PEAK:
+                if block.size and max(float(block.max()), -float(block.min())) >= CLIP_PEAK:
                     clipped_blocks += 1
                 steps, segments = meter.push(block)
                 if steps is not None:
@@ -252,7 +246,7 @@ def analyse_sources(sources: Sequence[Source], settings: RecordSettings = Record
         placed.append(PlacedFile(name, file_start, source.duration_s, frames_read / source.sample_rate_hz,
                                  source.sample_rate_hz, start_from, source.path))
         previous_end = file_start + timedelta(seconds=source.duration_s)
-    assert collector is not None and bands_hz is not None
+    assert collector is not None
     collector.finish()
     return _record(settings, collector, placed, bands_hz, level_offset_db, found)
 
