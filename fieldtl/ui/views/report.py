@@ -17,10 +17,9 @@ with common.fenced():
     project, test = common.require_test()
     st.title("Report and export")
     common.heading(project, test)
-    try:
-        assessment = cached.assessment(store.survey_for_test(test.id))
-    except FieldTLError as exc:
-        st.warning(common.md(exc))
+    assessment = common.assessment_of(test)          # takes named by file name and positions throughout
+    if assessment is None:
+        st.page_link("views/takes.py", label="Go to Takes", icon="🎙️")
         common.cautions()
         st.stop()
 
