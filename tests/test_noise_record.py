@@ -248,3 +248,20 @@ def test_phone_rate_and_studio_rate_joined(tmp_path: Path):
     (minute,) = record.intervals
     assert minute.laeq_db == pytest.approx(-35.0, abs=0.05)
     assert minute.band_leq_db[record.bands_hz.index(1000.0)] == pytest.approx(-35.0, abs=0.1)
+
+
+@pytest.mark.parametrize("nominal_hz", [20.0, 25.0, 31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0])
+def test_low_frequency_view_reads_a_tone_at_mid_band(nominal_hz):
+    # IEC 61260-1:2014 5.4: exact mid-band frequency fm = 1000 · 10^(3x/30) (base ten, x = band number);
+    # a band filter reads a tone at fm at its own level (attenuation 0 dB at fm, 5.10). 10^0.3 ≈ 1.99526.
+    x = round(10 * math.log10(nominal_hz / 1000))    # band number: 20 Hz is x = -17, 200 Hz is x = -7
+    centre_hz = 1000.0 * 10 ** (3 * x / 30)
+    rate_hz = 8000
+    t_s = np.arange(120 * rate_hz) / rate_hz
+    tone = amplitude(-30.0) * np.sin(2 * np.pi * centre_hz * t_s)
+    from fieldtl.noise.record import Source
+    source = Source("lf.wav", rate_hz, tone.size, lambda: iter(np.array_split(tone, 12)))
+    record = analyse_sources([source], RecordSettings(interval_min=1), start=datetime(2026, 1, 1, tzinfo=timezone.utc))
+    # within 0.3 dB: a tone between the 1 Hz bins of the 1 s segments spreads part of its energy
+    # (sinc² sidelobes of the rectangular segment) beyond its band; worst at 31.6 Hz, 0.62 bins off
+    assert record.intervals[0].band_leq_db[record.bands_hz.index(nominal_hz)] == pytest.approx(-30.0, abs=0.3)
