@@ -213,3 +213,10 @@ def test_the_declared_build_up_is_entered_in_fields_and_feeds_the_construction_c
     # 150 mm dense concrete: Rw 51 dB by the mass law and Sharp's method (published value, checked by
     # hand in tests/test_outside_values.py)
     assert "Predicted Rw 51 dB" in _texts(check)
+
+
+def test_messages_name_roles_in_the_pickers_words():
+    from fieldtl.ui.common import ROLE_NAMES, plain_roles
+    text = plain_roles("t: 2 included takes with role calibration; a calibration_after take needs a calibration take")
+    assert "calibration_after" not in text and "role calibration" not in text
+    assert f"kind '{ROLE_NAMES['calibration']}'" in text and f"'{ROLE_NAMES['calibration_after']}' take" in text

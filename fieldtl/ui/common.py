@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import contextlib
 import logging
+import re
 from collections.abc import Iterator
 
 import streamlit as st
@@ -132,6 +133,13 @@ def missing_words(test: TestRecord) -> str:
     return "; ".join(ROLE_NAMES.get(role, role) for role in missing)
 
 
+def plain_roles(text: str) -> str:
+    """Role codes in a core message ("role calibration_after", "a decay take") in the role picker's words."""
+    codes = "|".join(sorted(map(re.escape, ROLE_NAMES), key=len, reverse=True))
+    text = re.sub(rf"\brole ({codes})\b", lambda m: f"kind '{ROLE_NAMES[m.group(1)]}'", text)
+    return re.sub(rf"\b({codes}) takes?\b", lambda m: f"'{ROLE_NAMES[m.group(1)]}' take", text)
+
+
 def assessment_of(test: TestRecord) -> Assessment | None:
     """The test's assessment with takes named as people know them; None (after a message) when it
     cannot be computed yet. Errors name the take, never its storage name."""
@@ -144,7 +152,7 @@ def assessment_of(test: TestRecord) -> Assessment | None:
     try:
         assessment = cached.assessment(cached.store().survey_for_test(test.id))
     except FieldTLError as exc:
-        st.warning(md(renamed_text(str(exc), names)))
+        st.warning(md(plain_roles(renamed_text(str(exc), names))))
         return None
     return renamed_assessment(assessment, names)
 

@@ -132,7 +132,7 @@ def correction_form(store: Store, take: TakeRecord, test_type: str) -> None:
                 store.update_take(take.id, role=role, speaker=1 if role in NO_SOURCE_POSITION else speaker,
                                   method=method if decay else None, **sweep)
             except FieldTLError as exc:
-                st.error(common.md(exc))
+                st.error(common.md(common.plain_roles(str(exc))))
             else:
                 st.rerun()
 

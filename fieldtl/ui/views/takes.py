@@ -78,7 +78,7 @@ with common.fenced():
             take = store.add_take(test.id, data=data, original_name=name, role=role, speaker=speaker, method=method,
                                   channel=channel, source=source, recorder_settings=recorder_settings, **sweep)
         except FieldTLError as exc:
-            takelist.say("error", common.md(renamed_text(str(exc), names)))
+            takelist.say("error", common.md(common.plain_roles(renamed_text(str(exc), names))))
         else:
             takes.append(take)
             titles.update(takelist.titles(takes, setup.test_type))
