@@ -12,7 +12,10 @@ import hashlib
 import io
 import json
 import math
+import os
 import sqlite3
+import subprocess
+import sys
 import time
 from pathlib import Path
 
@@ -106,6 +109,36 @@ def test_the_cli_and_the_app_give_the_same_assessment_of_the_demo(tmp_path, monk
         st.cache_resource.clear()
         st.cache_data.clear()
     assert out.read_text(encoding="utf-8") == app == fresh_demo_json
+
+
+HEAVY = ("scipy.signal", "scipy.stats", "matplotlib", "fieldtl.analysis.levels", "fieldtl.analysis.decay")
+PROBE = ("import io, contextlib, sys\n"
+         "from fieldtl.cli import main\n"
+         "out = io.StringIO()\n"
+         "with contextlib.redirect_stdout(out): code = main(sys.argv[1:])\n"
+         f"print(code, sorted(m for m in {HEAVY!r} if m in sys.modules))\n"
+         "print(out.getvalue())\n")
+
+
+def run_cli(*args, env):
+    done = subprocess.run([sys.executable, "-c", PROBE, *args], capture_output=True, text=True, env=env, timeout=600)
+    assert done.returncode == 0, done.stderr
+    status, _, text = done.stdout.partition("\n")
+    return status, text
+
+
+def test_a_second_fieldtl_assess_reads_kept_measurements_and_loads_no_analysis(tmp_path):
+    # Module lists, not timings: what a run imports is the cost the issue is about (scipy.signal
+    # alone pulls in scipy.stats), and it is the same on any machine.
+    env = dict(os.environ, FIELDTL_DATA_DIR=str(tmp_path))
+    env.pop("FIELDTL_NO_CACHE", None)
+    assert run_cli("--help", env=env)[0] == f"0 {[]}"                             # the parser alone
+    first_status, first = run_cli("assess", str(DEMO / "survey.toml"), env=env)
+    assert first_status.startswith("0 ") and "scipy.signal" in first_status      # measured: analysis loaded
+    second_status, second = run_cli("assess", str(DEMO / "survey.toml"), env=env)
+    assert second_status == f"0 {[]}" and second == first                         # read back, same report
+    fresh_status, fresh = run_cli("assess", str(DEMO / "survey.toml"), env=dict(env, FIELDTL_NO_CACHE="1"))
+    assert "scipy.signal" in fresh_status and fresh == first
 
 
 # --- what invalidates a kept measurement -------------------------------------------------------------
