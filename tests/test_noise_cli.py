@@ -102,3 +102,23 @@ def test_event_clips_only_when_switched_on(files, capsys):
     expected_s = 3.0 * (1 - 2 / np.pi * np.arcsin(0.9))
     assert rate_hz == RATE_HZ and loud.sum() / rate_hz == pytest.approx(expected_s, rel=0.01)
     assert delete_clips(clips) == 2 and not clips.exists()
+
+
+def test_calibrated_record_against_a_separation_test(files, capsys):
+    folder, first, second, _ = files
+    t_s = np.arange(5 * RATE_HZ) / RATE_HZ
+    calibration = write_wav(folder / "cal.wav", amplitude(-20.0) * np.sin(2 * np.pi * 1000.0 * t_s),
+                            sample_rate_hz=RATE_HZ)
+    test = folder / "dnt.csv"
+    test.write_text("Hz;DnT;T\n100;45,0;0,5\n125;47;0,5\n1000;55;1,0\n", encoding="utf-8")
+    assert main(["record", str(first), str(second), "--calibration", str(calibration), "--separation", str(test),
+                 "--json", str(folder / "r.json")]) == 0
+    document = json.loads((folder / "r.json").read_text(encoding="utf-8"))
+    # calibrator 94 dB read at -20 dB re full scale: offset 114 dB; the -25 dB re FS bursts read 89 dB
+    assert document["events"][0]["lafmax_db"] == pytest.approx(89.0, abs=0.1)
+    music = document["wall"][0]
+    assert music["source"] == "music with bass" and music["band_frequencies_hz"] == [100, 125, 1000]
+    # ISO 16283-1: L2 = L1 - DnT + 10 lg(T/0.5 s); the invented music spectrum has 88 dB at 100 Hz, 73 dB at 1 kHz
+    assert music["expected_db"] == pytest.approx([88.0 - 45.0, 85.0 - 47.0, 73.0 - 55.0 + 10 * np.log10(2.0)], abs=0.05)
+    assert [w["source"] for w in document["wall"]] == ["music with bass", "television", "raised speech"]
+    assert "invented" in capsys.readouterr().out

@@ -36,6 +36,8 @@ def add_record_options(sub: argparse._SubParsersAction) -> argparse.ArgumentPars
     record.add_argument("--count-level-db", type=float, default=45.0,
                         help="count per night the events with LAFmax above this (default 45)")
     record.add_argument("--diary", type=Path, metavar="DIARY.csv", help="occupant's diary: time, heard, disturbance")
+    record.add_argument("--separation", type=Path, metavar="TEST.csv",
+                        help="a separation test (columns Hz, DnT or L'nT, optional T) to compare the events with")
     record.add_argument("--json", type=Path, metavar="OUT", help="write the record as JSON")
     record.add_argument("--csv", type=Path, metavar="OUT.csv",
                         help="write intervals as CSV (and the events beside it as OUT-events.csv)")
@@ -54,7 +56,7 @@ def run_record(args: argparse.Namespace, *, progress_bar: Callable[[], AbstractC
 
     if len(args.files) > MAX_FILES:
         raise InputError(f"record: at most {MAX_FILES} files, got {len(args.files)}")
-    for path in args.files + [p for p in (args.diary,) if p is not None]:
+    for path in args.files + [p for p in (args.diary, args.separation) if p is not None]:
         if not path.is_file():
             raise InputError(f"{file_label(path)}: file not found")
     channel = int(number(args.channel, "--channel", low=CHANNEL[0], high=CHANNEL[1], integer=True)) - 1
@@ -72,10 +74,16 @@ def run_record(args: argparse.Namespace, *, progress_bar: Callable[[], AbstractC
         check_output(_events_csv(args.csv), "--csv")
     if args.keep_clips is not None and args.keep_clips.exists() and not args.keep_clips.is_dir():
         raise InputError(f"{file_label(args.keep_clips)}: --keep-clips must be a folder")
+    from fieldtl.tomlfile import read_text_file
+
     diary_text = None
     if args.diary is not None:
-        from fieldtl.tomlfile import read_text_file
         diary_text = read_text_file(args.diary, what="diary")
+    separation = None
+    if args.separation is not None:
+        from fieldtl.noise.wall import read_separation_csv
+        separation = read_separation_csv(read_text_file(args.separation, what="separation test"),
+                                         source_name=file_label(args.separation))
     print(f"CAUTION: {NOISE_RECORD_CAUTION}\nCAUTION: {INDICATIVE_CAUTION}")
     if args.keep_clips is not None:
         print(f"CAUTION: {RECORDING_CAUTION}")
@@ -83,14 +91,16 @@ def run_record(args: argparse.Namespace, *, progress_bar: Callable[[], AbstractC
     if args.calibration is not None:
         from fieldtl.measure import calibrate_file
         offset_db = calibrate_file(args.calibration, 0, args.calibrator_db).offset_db
-    return _analyse_and_write(args, settings, start, start_notes, offset_db, channel, diary_text, progress_bar)
+    return _analyse_and_write(args, settings, start, start_notes, offset_db, channel, diary_text, separation,
+                              progress_bar)
 
 
 def _events_csv(path: Path) -> Path:
     return path.with_name(f"{path.stem}-events.csv")
 
 
-def _analyse_and_write(args, settings, start, start_notes, offset_db, channel, diary_text, progress_bar) -> int:
+def _analyse_and_write(args, settings, start, start_notes, offset_db, channel, diary_text, separation,
+                       progress_bar) -> int:
     import dataclasses
 
     from fieldtl.noise.diary import match_diary, read_diary_csv
@@ -109,9 +119,12 @@ def _analyse_and_write(args, settings, start, start_notes, offset_db, channel, d
                                  source_name=file_label(args.diary))
         diary = match_diary(record, entries)
     references = compare(record, WHO_BEDROOM_NIGHT)
+    wall = _wall(record, separation)
     _print_summary(record, diary, references, level_unit(record))
+    for comparison in wall:
+        print(f"{comparison.source.name} ({comparison.source.origin}): {comparison.conclusion}")
     if args.json:
-        _write(args.json, json_text(record_to_json(record, diary=diary, references=references)))
+        _write(args.json, json_text(record_to_json(record, diary=diary, wall=wall, references=references)))
     if args.csv:
         _write(args.csv, intervals_to_csv(record))
         _write(_events_csv(args.csv), events_to_csv(record))
@@ -120,7 +133,7 @@ def _analyse_and_write(args, settings, start, start_notes, offset_db, channel, d
         save_timeline(record, args.plot, diary=diary)
     if args.pdf:
         from fieldtl.report.noise_pdf import record_to_pdf
-        data = record_to_pdf(record, diary=diary, references=references)
+        data = record_to_pdf(record, diary=diary, wall=wall, references=references)
         try:
             args.pdf.write_bytes(data)
         except OSError as exc:
@@ -130,6 +143,24 @@ def _analyse_and_write(args, settings, start, start_notes, offset_db, channel, d
         clips = write_event_clips(record, args.keep_clips, channel=channel)
         print(f"{len(clips)} event clip(s) kept in {file_label(args.keep_clips)}")
     return 0
+
+
+def _wall(record, separation) -> tuple:
+    """Every default source of the test's kind against the events' spectrum; none without a test.
+    An uncalibrated record or one without events cannot be compared: said in one printed line."""
+    if separation is None:
+        return ()
+    from fieldtl.noise.wall import DEFAULT_SOURCES, compare_with_wall, events_spectrum
+
+    test, room_t = separation
+    try:
+        recorded = events_spectrum(record)
+    except InputError as exc:
+        print(f"link to the separating element: not made ({exc})")
+        return ()
+    kind = "impact" if test.quantity == "L'nT" else "airborne"
+    return tuple(compare_with_wall(source, recorded, separation=test, reverberation_time_s=room_t)
+                 for source in DEFAULT_SOURCES if source.kind == kind)
 
 
 def _print_summary(record, diary, references, unit: str) -> None:

@@ -154,3 +154,42 @@ def _conclusion(bands: tuple[float, ...], excess: np.ndarray) -> str:
                 "spectrum's shape.")
     return (f"Excess of {mean_db:.0f} dB on average, uneven across bands: another path and a louder source are "
             "both possible; compare the bands above with the wall's weak bands.")
+
+
+def read_separation_csv(text: str, *, source_name: str) -> tuple[BandSpectrum, BandSpectrum | None]:
+    """A separation test typed or exported as CSV: columns ``Hz`` and ``DnT`` (or ``L'nT``), and
+    optionally ``T`` (the complainant's room, seconds). Comma, semicolon or tab separated."""
+    import csv
+    import io
+
+    lines = [line for line in text.splitlines() if line.strip()]
+    if len(lines) < 2:
+        raise InputError(f"{source_name}: needs a header row and at least one band")
+    delimiter = max((",", ";", "\t"), key=lines[0].count)
+    rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delimiter))
+    header = [cell.strip().lower().replace("’", "'") for cell in rows[0]]
+    names = {"hz": "hz", "dnt": "DnT", "l'nt": "L'nT", "lnt": "L'nT", "t": "T"}
+    columns = {names[h]: i for i, h in enumerate(header) if h in names}
+    quantity = "DnT" if "DnT" in columns else "L'nT" if "L'nT" in columns else None
+    if "hz" not in columns or quantity is None:
+        raise InputError(f"{source_name}: the first row must name the columns Hz and DnT (or L'nT)")
+    bands, values, times = [], [], []
+    for number, row in enumerate(rows[1:], start=2):
+        cells = [c.strip().replace(",", ".") if delimiter != "," else c.strip() for c in row]
+        try:
+            frequency = float(cells[columns["hz"]])
+            value = float(cells[columns[quantity]])
+            time_s = float(cells[columns["T"]]) if "T" in columns and cells[columns["T"]] else math.nan
+        except (ValueError, IndexError):
+            raise InputError(f"{source_name}: row {number} is not a band with numbers") from None
+        if not (math.isfinite(value) and -20 <= value <= 120):
+            raise InputError(f"{source_name}: row {number}: {quantity} must be -20 to 120 dB")
+        bands.append(frequency)
+        values.append(value)
+        times.append(time_s)
+    if sorted(set(bands)) != bands or any(f not in nominal_bands_hz(20, 20000) for f in bands):
+        raise InputError(f"{source_name}: bands must be nominal one-third-octave frequencies, ascending")
+    separation = BandSpectrum(tuple(bands), tuple(values), "dB", quantity)
+    if "T" not in columns:
+        return separation, None
+    return separation, BandSpectrum.from_array(bands, times, "s", "T")
