@@ -6,7 +6,10 @@ assessment on top of them is cheap and also cached per server process here.
 
 from __future__ import annotations
 
+import importlib
 import os
+import threading
+import time
 from pathlib import Path
 
 import streamlit as st
@@ -20,6 +23,9 @@ from fieldtl.testrun import BackgroundMeasurer, TestTakes, assess_survey, measur
 
 DEMO_SURVEY = Path(__file__).resolve().parents[2] / "sample_audio" / "survey.toml"
 DEMO_PROJECT = "Invented demo: Brackenfold House (a fictional building)"
+# What the Results and Report pages import (charts, tables, the PDF writer; about 2 s together):
+# loaded by a background thread once the takes are measured, so the first visit does not wait.
+LATER_MODULES = ("fieldtl.ui.chart", "fieldtl.report.export", "fieldtl.report.pdf")
 
 
 def _release(opened: tuple[Store, BackgroundMeasurer]) -> None:
@@ -39,7 +45,19 @@ def _opened() -> tuple[Store, BackgroundMeasurer]:
         project = handle.create_project(DEMO_PROJECT, client="Invented client (demo data)",
                                         address="Invented address, not a real place", engineer="Demo")
         import_survey(handle, load_survey(DEMO_SURVEY), project_id=project.id)
-    return handle, BackgroundMeasurer(handle, every_test=True)
+    measurer = BackgroundMeasurer(handle, every_test=True)
+    threading.Thread(target=_load_later_modules, args=(measurer,), name="fieldtl-imports", daemon=True).start()
+    return handle, measurer
+
+
+def _load_later_modules(measurer: BackgroundMeasurer) -> None:
+    while not measurer.idle():          # the analysis first: it is what the first pages wait for
+        time.sleep(0.5)
+    for name in LATER_MODULES:
+        try:
+            importlib.import_module(name)
+        except Exception:  # noqa: BLE001 - only a head start: the page importing it reports any problem
+            return
 
 
 def store() -> Store:
