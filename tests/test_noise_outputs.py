@@ -98,3 +98,17 @@ def test_wall_refuses_uncalibrated(pieces):
     record = dataclasses.replace(pieces[0], calibrated=False)
     with pytest.raises(InputError, match="not calibrated"):
         events_spectrum(record)
+
+
+def test_record_read_back_from_its_json(pieces):
+    from fieldtl.noise.stored import record_from_json
+
+    record, diary, _, _ = pieces
+    document = json.loads(json_text(record_to_json(record)))
+    again = record_from_json(document)
+    assert record_to_json(again) == document            # the JSON is a fixed point
+    entries = tuple(m.entry for m in diary)
+    assert [m.statement for m in match_diary(again, entries)] == [m.statement for m in diary]
+    broken = dict(document, minutes=[{"start": "yesterday"}])
+    with pytest.raises(InputError, match="stored record"):
+        record_from_json(broken)

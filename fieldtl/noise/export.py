@@ -67,6 +67,8 @@ def record_to_json(record: NoiseRecord, *, diary: Sequence[DiaryMatch] = (), wal
         "band_frequencies_hz": [json_number(f) for f in record.bands_hz],
         "low_frequency_bands_hz": [json_number(f) for f in record.bands_hz if f <= LOW_BANDS_UP_TO_HZ],
         "intervals": [_levels(i) for i in record.intervals],
+        "minutes": [{"start": m.start.isoformat(), "covered_s": _r(m.covered_s, 1), "laeq_db": _r(m.laeq_db),
+                     "lafmax_db": _r(m.lafmax_db), "laf90_db": _r(m.laf90_db)} for m in record.minutes],
         "periods": [{"name": p.name, "date": p.date, "night": p.night, "events": p.events, **_levels(p.levels)}
                     for p in record.periods],
         "events": [{"number": numbers[id(e)], "start": e.start.isoformat(timespec="milliseconds"), "duration_s": _r(e.duration_s, 2),
