@@ -90,3 +90,23 @@ def test_the_pdf_of_a_stored_test_names_no_storage_file(stored_demo):
     text = "\n".join(page.extract_text() for page in reader.pages)
     assert not HEX_NAME.search(text.replace("\n", ""))
     assert "ir_s2_p3.flac" in text.replace("\n", "")
+
+
+def test_the_pdf_leads_with_the_verdict_single_numbers_and_cautions_and_has_no_internal_notes(stored_demo):
+    _, named = stored_demo
+    pages = [page.extract_text().replace("\n", " ") for page in PdfReader(BytesIO(assessment_to_pdf(named))).pages]
+    first = pages[0]
+    # the demo's truth: DnT,w 54, Ctr -4, so DnT,w + Ctr = 50 dB (sample_audio/expected.json, ISO 717-1)
+    assert "PASS against the requirement DnT,w + Ctr >= 45 dB (value 50 dB)" in first
+    assert "DnT,w + Ctr = 54 - 4 = 50 dB" in first and "Expanded uncertainty U =" in first
+    assert "Single-number results" in first and re.search(r"DnT,w ISO 717-1 54 ", first)
+    assert "hearing protection" in first and "accredited procedure" in first
+    for page in pages:
+        lowered = page.lower()
+        assert "from memory" not in lowered and "facts sheet" not in lowered
+        assert not HEX_NAME.search(page.replace(" ", ""))
+    # unconfirmed values are marked, and the mark is explained once, in the method section
+    whole = " ".join(pages)
+    sentence = "the tool's default, check against your copy of the standard"
+    assert whole.count(sentence) == 1 and whole.index("Method") < whole.index(sentence)
+    assert whole.count("†") >= 2                  # the mark beside the values, and once in the explanation

@@ -1,8 +1,11 @@
-"""Assessment → a printable PDF report (fpdf2), usually three A4 pages.
+"""Assessment → a printable PDF report for a client (fpdf2), usually three or four A4 pages.
 
-Order: title block and the standards applied, cautions, test details, per-band table, chart,
-single numbers with uncertainty and verdict, QA notes, closing line. The cautions are repeated
-in small type in every page footer.
+Page 1: the test, the verdict with the value it compares and its uncertainty, the single numbers
+and the cautions. Then the chart, the per-band table, the findings, the construction check, the
+test details and the method (standards, clauses and rules applied). The cautions are repeated in
+small type in every page footer. Internal notes of the code ("from memory", facts-sheet numbers)
+never reach the page: texts pass through :func:`fieldtl.report.client.marked`, and the method
+section says once what the mark of an unconfirmed value means.
 
 Every string reaches the page as plain text: markdown is never enabled, control characters are
 dropped and characters the embedded font (matplotlib's DejaVu Sans) cannot draw are replaced by
@@ -30,6 +33,7 @@ from fieldtl import __version__
 from fieldtl.assess import Assessment
 from fieldtl.errors import InputError
 from fieldtl.insulation import AirborneResult
+from fieldtl.report.client import TOOL_DEFAULT, UNCONFIRMED_MARK, compared_value, marked
 from fieldtl.report.export import band_columns, grouped_findings, low_frequency_t_note, uncertainty_columns
 from fieldtl.report.plot import assessment_figure, construction_figure
 
@@ -46,7 +50,7 @@ _LIMITED_FILL = (253, 235, 208)
 _HEADER_FILL = (228, 233, 240)
 _CAUTION_FILL = (242, 242, 242)
 
-# ISO 16283-1/-2 background rule (facts sheet 1.8): with a margin <= 6 dB, 1.3 dB is subtracted and
+# ISO 16283-1/-2 background rule: with a margin <= 6 dB, 1.3 dB is subtracted and
 # the band is a measurement limit. The corrected receiving-room level is then at most the value
 # shown (upper bound), so airborne insulation is at least the value shown (lower bound) and impact
 # levels at most the value shown (upper bound). L1, B and T are not affected.
@@ -102,15 +106,17 @@ def assessment_to_pdf(assessment: Assessment, *, details: ReportDetails | None =
     pdf.set_title(_safe(assessment.title))
     pdf.set_creator(f"fieldtl {__version__}")
     pdf.start()
-    _title_block(pdf, assessment, details)
-    _cautions_box(pdf, assessment.cautions)
-    _test_details(pdf, assessment, details)
-    _band_table(pdf, assessment)
-    _chart(pdf, assessment)
-    _single_numbers(pdf, assessment)
+    _title_block(pdf, assessment, details)       # page 1: the test, verdict, single numbers, cautions
     _verdict(pdf, assessment)
-    _construction_check(pdf, assessment)
+    _single_numbers(pdf, assessment)
+    _cautions_box(pdf, assessment.cautions)
+    pdf.add_page()
+    _chart(pdf, assessment)
+    _band_table(pdf, assessment)
     _qa_notes(pdf, assessment)
+    _construction_check(pdf, assessment)
+    _test_details(pdf, assessment, details)
+    _method(pdf, assessment)
     pdf.ln(3)
     _paragraph(pdf, f"Produced with fieldtl {__version__}. End of report.", size=8)
     return bytes(pdf.output())
@@ -228,9 +234,7 @@ def _title_block(pdf: FPDF, assessment: Assessment, details: ReportDetails) -> N
                          ("Site address", details.site_address), ("Date of measurement", details.measurement_date),
                          ("Engineer / operator", details.engineer), ("Organisation", details.organisation)):
         _field(pdf, label, value)
-    pdf.ln(1.5)
-    _paragraph(pdf, f"Standards applied: {_STANDARDS[assessment.test_type]}. The single numbers are field "
-                    "(apparent) values from a measurement in the building, not laboratory ratings.", size=8.5)
+    _field(pdf, "Test", _TEST_TYPES[assessment.test_type])
 
 
 def _cautions_box(pdf: FPDF, cautions: tuple[str, ...]) -> None:
@@ -258,9 +262,6 @@ def _test_details(pdf: FPDF, assessment: Assessment, details: ReportDetails) -> 
         _field(pdf, "", details.positions_description)
     if details.notes.strip():
         _field(pdf, "Notes", details.notes)
-    pdf.ln(1)
-    _paragraph(pdf, "Rules applied", size=8.5, bold=True)
-    _bullets(pdf, assessment.rules_applied)
 
 
 def _geometry_text(assessment: Assessment) -> str:
@@ -370,7 +371,7 @@ def _construction_check(pdf: FPDF, assessment: Assessment) -> None:
     _paragraph(pdf, f"The declared build-up predicts Rw = {check.predicted_rating.single_number_db} dB; the field "
                     f"measurement {measured}; mean band gap {check.mean_gap_db:+.1f} dB (prediction minus field). "
                     "The prediction is a simple model of the element alone (no flanking); its findings are "
-                    "listed with the QA notes.", size=8.5)
+                    "listed with the other findings.", size=8.5)
 
 
 def _single_numbers(pdf: FPDF, assessment: Assessment) -> None:
@@ -407,16 +408,10 @@ def _single_numbers(pdf: FPDF, assessment: Assessment) -> None:
     _paragraph(pdf, "≥ / ≤ before a value: the rating is a lower / upper bound because bands in its range were "
                     "limited by background noise. * after a term: the single number plus that term is such a "
                     "bound. Terms are added to the single number (e.g. DnT,w + Ctr). The 0.1 dB step value is "
-                    "for uncertainty work (ISO 717-1/-2:2020), not for comparing with requirements.", size=7)
+                    "for uncertainty work (ISO 717-1/-2:2020); requirements compare the whole-dB values.", size=7)
     pdf.ln(1)
-    _paragraph(pdf, f"Uncertainty u of the rating alone: {assessment.uncertainty_note or 'not stated'}. The "
-                    "verdict below uses the row of its own quantity (e.g. + Ctr).", size=8, bold=True)
-    band = uncertainty_columns(assessment)
-    if band:
-        _paragraph(pdf, "Per band, standard uncertainty in dB (" + "; ".join(
-            f"{_BAND_U_NAMES[name]}: " + ", ".join(f"{_number(f)} Hz {v:.1f}" for f, v in zip(s.nominal_hz, s.values)
-                                                  if v is not None)
-            for name, s in band.items()) + ").", size=7)
+    _paragraph(pdf, "u: standard uncertainty of the rating alone (ISO 12999-1, see Method); the verdict uses "
+                    "the row of its own quantity (e.g. + Ctr).", size=7)
 
 
 _BAND_U_NAMES = {"u_iso12999": "ISO 12999-1:2020 table value", "u_spread": "this test's own spread"}
@@ -440,12 +435,15 @@ def _verdict(pdf: FPDF, assessment: Assessment) -> None:
         return
     bound = {"lower": ", a lower bound", "upper": ", an upper bound"}.get(verdict.bound, "")
     _paragraph(pdf, f"{verdict.outcome.upper()} against the requirement {verdict.requirement} dB "
-                    f"(value {verdict.value_db:.1f} dB{bound})", size=11, bold=True, height_mm=6)
-    _paragraph(pdf, verdict.statement, size=8.5)
+                    f"(value {verdict.value_db:.0f} dB{bound})", size=11, bold=True, height_mm=6)
+    _paragraph(pdf, f"Compared value: {compared_value(assessment)}, the whole-dB rating plus the whole-dB term as "
+                    f"the single-number table below shows them. Expanded uncertainty U = "
+                    f"{verdict.expanded_uncertainty_db:.1f} dB (k = {verdict.coverage_factor:.2f}, ISO 12999-1). "
+                    "How the decision was made is set out under Method.", size=9)
 
 
 def _qa_notes(pdf: FPDF, assessment: Assessment) -> None:
-    _heading(pdf, "Quality notes")
+    _heading(pdf, "Findings")
     groups = grouped_findings(assessment.findings)
     if not groups:
         _paragraph(pdf, "No quality findings.")
@@ -460,8 +458,39 @@ def _qa_notes(pdf: FPDF, assessment: Assessment) -> None:
         for finding, count, bands_hz in groups:
             more = (f" (and {count - 1} more: {', '.join(_number(b) for b in bands_hz[1:])} Hz)"
                     if count > 1 and len(bands_hz) > 1 else (f" (and {count - 1} more)" if count > 1 else ""))
-            clause = f" [{finding.clause}]" if finding.clause else ""
             row = table.row()
             row.cell(f"{finding.severity.upper()}\n{finding.code}")
-            row.cell(_safe(f"{finding.message}{more}{clause}"))
-            row.cell(_safe(finding.action))
+            row.cell(_safe(marked(f"{finding.message}{more}")))
+            row.cell(_safe(marked(finding.action)))
+
+
+def _method(pdf: FPDF, assessment: Assessment) -> None:
+    """Standards and clauses applied, the decision rule and the uncertainty, in words for a client."""
+    _heading(pdf, "Method")
+    _paragraph(pdf, f"Standards applied: {_STANDARDS[assessment.test_type]}. The single numbers are field "
+                    "(apparent) values from a measurement in the building, not laboratory ratings.", size=8.5)
+    texts = [marked(rule) for rule in assessment.rules_applied]
+    pdf.ln(1)
+    _paragraph(pdf, "Clauses and rules applied", size=8.5, bold=True)
+    _bullets(pdf, texts)
+    if assessment.verdict is not None:
+        pdf.ln(1)
+        _paragraph(pdf, "Decision", size=8.5, bold=True)
+        texts.append(marked(assessment.verdict.statement))
+        _paragraph(pdf, texts[-1], size=8)
+    pdf.ln(1)
+    _paragraph(pdf, "Uncertainty", size=8.5, bold=True)
+    texts.append(marked(f"Uncertainty u of each rating: {assessment.uncertainty_note or 'not stated'}."))
+    _paragraph(pdf, texts[-1], size=8)
+    band = uncertainty_columns(assessment)
+    if band:
+        _paragraph(pdf, "Per band, standard uncertainty in dB (" + "; ".join(
+            f"{_BAND_U_NAMES[name]}: " + ", ".join(f"{_number(f)} Hz {v:.1f}" for f, v in zip(s.nominal_hz, s.values)
+                                                  if v is not None)
+            for name, s in band.items()) + ").", size=7)
+    findings_marked = any(marked(t).endswith(UNCONFIRMED_MARK) for f in assessment.findings
+                          for t in (f.message, f.action))
+    if findings_marked or any(t.endswith(UNCONFIRMED_MARK) for t in texts):
+        pdf.ln(1)
+        _paragraph(pdf, f"{UNCONFIRMED_MARK} Where this mark stands, the value used is {TOOL_DEFAULT}.", size=8.5,
+                   bold=True)

@@ -1,33 +1,14 @@
-"""Words the Results page shows: the verdict's compared value and one line per group of findings."""
+"""Words the Results page shows: one line per group of findings, and which groups to redo on site."""
 
 from __future__ import annotations
 
 from collections.abc import Collection, Sequence
 
-from fieldtl.assess import Assessment
 from fieldtl.naming import FindingGroup
 from fieldtl.report.export import json_number
 from fieldtl.ui import common
 
 SEVERITY_WORDS = {"error": "Error", "warning": "Check", "info": "Note"}
-
-
-def compared_value(assessment: Assessment) -> str:
-    """"DnT,w + Ctr = 54 + (-4) = 50 dB": the verdict's number formed from the single-number table."""
-    verdict = assessment.verdict
-    if verdict is None:
-        return ""
-    requirement = verdict.requirement
-    rating = assessment.rating(requirement.descriptor)
-    term = requirement.adaptation_term
-    if rating is None:
-        return f"{verdict.value_db:.0f} dB"
-    if term is None:
-        return f"{rating.descriptor} = {rating.single_number_db} dB"
-    term_db = rating.adaptation_terms_db[term]
-    sign = "-" if term_db < 0 else "+"       # as the verdict statement writes it (fieldtl.assess)
-    return (f"{rating.descriptor} + {term} = {rating.single_number_db} {sign} {abs(term_db)} = "
-            f"{rating.single_number_db + term_db} dB")
 
 
 def site_list(groups: Sequence[FindingGroup], not_on_site: Collection[str]) -> list[FindingGroup]:
