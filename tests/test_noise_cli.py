@@ -122,3 +122,18 @@ def test_calibrated_record_against_a_separation_test(files, capsys):
     assert music["expected_db"] == pytest.approx([88.0 - 45.0, 85.0 - 47.0, 73.0 - 55.0 + 10 * np.log10(2.0)], abs=0.05)
     assert [w["source"] for w in document["wall"]] == ["music with bass", "television", "raised speech"]
     assert "invented" in capsys.readouterr().out
+
+
+def test_local_limits(files, capsys):
+    folder, first, second, _ = files
+    t_s = np.arange(5 * RATE_HZ) / RATE_HZ
+    calibration = write_wav(folder / "cal.wav", amplitude(-20.0) * np.sin(2 * np.pi * 1000.0 * t_s),
+                            sample_rate_hz=RATE_HZ)
+    # the two bursts read 89 dB (offset 114 dB): a limit at 88.9 has both above, at 89.1 none
+    assert main(["record", str(first), str(second), "--calibration", str(calibration),
+                 "--limit", "Local event limit:event_lafmax:88.9", "--limit", "Upper:event_lafmax:89.1"]) == 0
+    printed = capsys.readouterr().out
+    assert "Local event limit 88.9 dB: 2 of 2 events above" in printed
+    assert "Upper 89.1 dB: 0 of 2 events above" in printed
+    assert main(["record", str(first), "--limit", "no level here"]) == 2
+    assert "write it as NAME:WHAT:DB" in capsys.readouterr().err

@@ -36,6 +36,9 @@ def add_record_options(sub: argparse._SubParsersAction) -> argparse.ArgumentPars
     record.add_argument("--count-level-db", type=float, default=45.0,
                         help="count per night the events with LAFmax above this (default 45)")
     record.add_argument("--diary", type=Path, metavar="DIARY.csv", help="occupant's diary: time, heard, disturbance")
+    record.add_argument("--limit", action="append", default=[], metavar="NAME:WHAT:DB",
+                        help="a local limit to compare with (WHAT: night_laeq, event_lafmax or interval_laeq), "
+                             "e.g. 'Local night limit:night_laeq:35'; repeat for more")
     record.add_argument("--separation", type=Path, metavar="TEST.csv",
                         help="a separation test (columns Hz, DnT or L'nT, optional T) to compare the events with")
     record.add_argument("--json", type=Path, metavar="OUT", help="write the record as JSON")
@@ -66,6 +69,7 @@ def run_record(args: argparse.Namespace, *, progress_bar: Callable[[], AbstractC
                               event_margin_db=args.event_margin_db, event_level_db=args.event_level_db,
                               count_level_db=args.count_level_db, keep_clips=args.keep_clips is not None)
     start, start_notes = parse_start(args.start, tz) if args.start else (None, ())
+    limits = tuple(_limit(text) for text in args.limit)
     for path, option, suffixes in ((args.json, "--json", ()), (args.csv, "--csv", ("csv",)),
                                    (args.pdf, "--pdf", ("pdf",)),
                                    (args.plot, "--plot", plot_suffixes() if args.plot else ())):
@@ -92,14 +96,27 @@ def run_record(args: argparse.Namespace, *, progress_bar: Callable[[], AbstractC
         from fieldtl.measure import calibrate_file
         offset_db = calibrate_file(args.calibration, 0, args.calibrator_db).offset_db
     return _analyse_and_write(args, settings, start, start_notes, offset_db, channel, diary_text, separation,
-                              progress_bar)
+                              limits, progress_bar)
+
+
+def _limit(text: str):
+    from fieldtl.noise.reference import reference_line
+    from fieldtl.validate import echo
+
+    name, _, rest = text.rpartition(":")
+    name, _, metric = name.rpartition(":")
+    try:
+        level_db = float(rest)
+    except ValueError:
+        raise InputError(f"--limit {echo(text)}: write it as NAME:WHAT:DB, e.g. 'Local night limit:night_laeq:35'") from None
+    return reference_line(name, metric, level_db)
 
 
 def _events_csv(path: Path) -> Path:
     return path.with_name(f"{path.stem}-events.csv")
 
 
-def _analyse_and_write(args, settings, start, start_notes, offset_db, channel, diary_text, separation,
+def _analyse_and_write(args, settings, start, start_notes, offset_db, channel, diary_text, separation, limits,
                        progress_bar) -> int:
     import dataclasses
 
@@ -118,7 +135,7 @@ def _analyse_and_write(args, settings, start, start_notes, offset_db, channel, d
         entries = read_diary_csv(diary_text, zone_name=settings.zone_name, first_date=record.start,
                                  source_name=file_label(args.diary))
         diary = match_diary(record, entries)
-    references = compare(record, WHO_BEDROOM_NIGHT)
+    references = compare(record, WHO_BEDROOM_NIGHT + limits)
     wall = _wall(record, separation)
     _print_summary(record, diary, references, level_unit(record))
     for comparison in wall:
