@@ -7,12 +7,14 @@ instead, and the report says once what the mark means (:data:`TOOL_DEFAULT`).
 
 from __future__ import annotations
 
+import dataclasses
 import re
 
 from fieldtl.assess import Assessment
 
 TOOL_DEFAULT = "the tool's default, check against your copy of the standard"
 UNCONFIRMED_MARK = "†"
+EXPLANATION = f"{UNCONFIRMED_MARK} Where this mark stands, the value used is {TOOL_DEFAULT}."
 
 _FROM_MEMORY = re.compile(r"\s*[;,]?\s*(?:formula\s+|values?\s+)?from memory", re.IGNORECASE)
 _FACTS_SHEET = re.compile(r"\s*[;,]?\s*(?:the project's\s+)?facts sheet(?:\s+[0-9][0-9.]*(?:\s*(?:,|and)\s*[0-9][0-9.]*)*)?"
@@ -53,3 +55,22 @@ def compared_value(assessment: Assessment) -> str:
     sign = "-" if term_db < 0 else "+"       # as the verdict statement writes it (fieldtl.assess)
     return (f"{rating.descriptor} + {term} = {rating.single_number_db} {sign} {abs(term_db)} = "
             f"{rating.single_number_db + term_db} dB")
+
+
+def client_assessment(assessment: Assessment) -> Assessment:
+    """The assessment as clients may read it: rules, verdict statement, uncertainty note and findings
+    without internal notes; if any value is marked unconfirmed, the rules end with :data:`EXPLANATION`
+    (so every output says it once). Applying it twice changes nothing more."""
+    rules = [marked(rule) for rule in assessment.rules_applied if rule != EXPLANATION]
+    findings = tuple(dataclasses.replace(f, message=marked(f.message), action=marked(f.action),
+                                         clause=client_text(f.clause)[0]) for f in assessment.findings)
+    verdict = assessment.verdict
+    if verdict is not None:
+        verdict = dataclasses.replace(verdict, statement=marked(verdict.statement),
+                                      uncertainty_note=marked(verdict.uncertainty_note))
+    texts = [*rules, *(t for f in findings for t in (f.message, f.action)),
+             *(() if verdict is None else (verdict.statement,)), marked(assessment.uncertainty_note)]
+    if any(t.endswith(UNCONFIRMED_MARK) for t in texts):
+        rules.append(EXPLANATION)
+    return dataclasses.replace(assessment, rules_applied=tuple(rules), findings=findings, verdict=verdict,
+                               uncertainty_note=marked(assessment.uncertainty_note))

@@ -14,6 +14,7 @@ from typing import Any
 
 from fieldtl.assess import Assessment
 from fieldtl.bands import BandSpectrum
+from fieldtl.report.client import client_assessment
 from fieldtl.construction import comparison_to_json
 from fieldtl.findings import Finding
 from fieldtl.insulation import AirborneResult
@@ -54,6 +55,7 @@ def _rating_json(rating: Rating, u_db: float | None) -> Any:
 
 def assessment_to_json(assessment: Assessment) -> dict[str, Any]:
     """The JSON document written by ``fieldtl assess --json``."""
+    assessment = client_assessment(assessment)     # no internal notes in a client's file
     columns = band_columns(assessment)
     verdict = assessment.verdict
     return {
@@ -159,6 +161,7 @@ def _csv_header(name: str, assessment: Assessment) -> str:
 
 def assessment_to_text(assessment: Assessment) -> str:
     """A plain-text report for the terminal: band table, single numbers, verdict, findings, cautions."""
+    assessment = client_assessment(assessment)
     columns = band_columns(assessment)
     limited = assessment.result.limited
     # Background-limited bands: corrected receiving levels are upper bounds, so airborne results

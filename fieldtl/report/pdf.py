@@ -33,7 +33,7 @@ from fieldtl import __version__
 from fieldtl.assess import Assessment
 from fieldtl.errors import InputError
 from fieldtl.insulation import AirborneResult
-from fieldtl.report.client import TOOL_DEFAULT, UNCONFIRMED_MARK, compared_value, marked
+from fieldtl.report.client import client_assessment, compared_value
 from fieldtl.report.export import band_columns, grouped_findings, low_frequency_t_note, uncertainty_columns
 from fieldtl.report.plot import assessment_figure, construction_figure
 
@@ -102,6 +102,7 @@ class ReportDetails:
 def assessment_to_pdf(assessment: Assessment, *, details: ReportDetails | None = None) -> bytes:
     """The PDF report of one test, as bytes. Does not compute anything and does not write files."""
     details = details or ReportDetails()
+    assessment = client_assessment(assessment)     # no internal notes; unconfirmed values marked
     pdf = _ReportPdf(assessment.cautions)
     pdf.set_title(_safe(assessment.title))
     pdf.set_creator(f"fieldtl {__version__}")
@@ -460,8 +461,8 @@ def _qa_notes(pdf: FPDF, assessment: Assessment) -> None:
                     if count > 1 and len(bands_hz) > 1 else (f" (and {count - 1} more)" if count > 1 else ""))
             row = table.row()
             row.cell(f"{finding.severity.upper()}\n{finding.code}")
-            row.cell(_safe(marked(f"{finding.message}{more}")))
-            row.cell(_safe(marked(finding.action)))
+            row.cell(_safe(f"{finding.message}{more}"))
+            row.cell(_safe(finding.action))
 
 
 def _method(pdf: FPDF, assessment: Assessment) -> None:
@@ -469,28 +470,19 @@ def _method(pdf: FPDF, assessment: Assessment) -> None:
     _heading(pdf, "Method")
     _paragraph(pdf, f"Standards applied: {_STANDARDS[assessment.test_type]}. The single numbers are field "
                     "(apparent) values from a measurement in the building, not laboratory ratings.", size=8.5)
-    texts = [marked(rule) for rule in assessment.rules_applied]
     pdf.ln(1)
     _paragraph(pdf, "Clauses and rules applied", size=8.5, bold=True)
-    _bullets(pdf, texts)
+    _bullets(pdf, assessment.rules_applied)       # ends with what the mark of an unconfirmed value means
     if assessment.verdict is not None:
         pdf.ln(1)
         _paragraph(pdf, "Decision", size=8.5, bold=True)
-        texts.append(marked(assessment.verdict.statement))
-        _paragraph(pdf, texts[-1], size=8)
+        _paragraph(pdf, assessment.verdict.statement, size=8)
     pdf.ln(1)
     _paragraph(pdf, "Uncertainty", size=8.5, bold=True)
-    texts.append(marked(f"Uncertainty u of each rating: {assessment.uncertainty_note or 'not stated'}."))
-    _paragraph(pdf, texts[-1], size=8)
+    _paragraph(pdf, f"Uncertainty u of each rating: {assessment.uncertainty_note or 'not stated'}.", size=8)
     band = uncertainty_columns(assessment)
     if band:
         _paragraph(pdf, "Per band, standard uncertainty in dB (" + "; ".join(
             f"{_BAND_U_NAMES[name]}: " + ", ".join(f"{_number(f)} Hz {v:.1f}" for f, v in zip(s.nominal_hz, s.values)
                                                   if v is not None)
             for name, s in band.items()) + ").", size=7)
-    findings_marked = any(marked(t).endswith(UNCONFIRMED_MARK) for f in assessment.findings
-                          for t in (f.message, f.action))
-    if findings_marked or any(t.endswith(UNCONFIRMED_MARK) for t in texts):
-        pdf.ln(1)
-        _paragraph(pdf, f"{UNCONFIRMED_MARK} Where this mark stands, the value used is {TOOL_DEFAULT}.", size=8.5,
-                   bold=True)

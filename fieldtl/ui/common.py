@@ -14,6 +14,7 @@ from fieldtl.assess import Assessment
 from fieldtl.cautions import CAUTIONS
 from fieldtl.errors import FieldTLError
 from fieldtl.naming import renamed_assessment, renamed_text, take_names
+from fieldtl.report.client import client_assessment
 from fieldtl.store import Project, TestRecord
 from fieldtl.ui import cached, gate, progress, state
 
@@ -154,7 +155,7 @@ def assessment_of(test: TestRecord) -> Assessment | None:
     except FieldTLError as exc:
         st.warning(md(plain_roles(renamed_text(str(exc), names))))
         return None
-    return renamed_assessment(assessment, names)
+    return client_assessment(renamed_assessment(assessment, names))
 
 
 def heading(project: Project, test: TestRecord) -> None:
