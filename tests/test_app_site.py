@@ -220,3 +220,8 @@ def test_messages_name_roles_in_the_pickers_words():
     text = plain_roles("t: 2 included takes with role calibration; a calibration_after take needs a calibration take")
     assert "calibration_after" not in text and "role calibration" not in text
     assert f"kind '{ROLE_NAMES['calibration']}'" in text and f"'{ROLE_NAMES['calibration_after']}' take" in text
+
+
+def test_band_table_headers_have_no_underscores():
+    from fieldtl.ui.common import column_title
+    assert [column_title(n) for n in ("R_prime", "L_prime_n", "L_prime_nT", "DnT")] == ["R'", "L'n", "L'nT", "DnT"]

@@ -170,7 +170,8 @@ def assessment_to_text(assessment: Assessment) -> str:
     lower_bound_columns = {"D", "Dn", "DnT", "R_prime"}
     lines = [assessment.title, f"{assessment.test_type} test; levels "
              f"{'calibrated (dB re 20 µPa)' if assessment.calibrated else 'in dB re full scale (no calibration)'}", ""]
-    header = f"{'Hz':>6} " + " ".join(f"{name.replace('_prime', chr(39)):>8}" for name in columns)
+    header = f"{'Hz':>6} " + " ".join(f"{name.replace('_prime_', chr(39)).replace('_prime', chr(39)):>8}"
+                                      for name in columns)
     lines += [header, "-" * len(header)]
     for i, frequency_hz in enumerate(assessment.result.nominal_hz):
         cells = []

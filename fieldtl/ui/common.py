@@ -81,6 +81,11 @@ ROLE_NAMES: dict[str, str] = {
 }
 
 
+def column_title(name: str) -> str:
+    """A band column's key as printed: "R_prime" → "R'", "L_prime_nT" → "L'nT" (no underscores)."""
+    return name.replace("_prime_", "'").replace("_prime", "'").replace("_", " ")
+
+
 def position_label(test_type: str) -> str:
     return "Tapping-machine position" if test_type == "impact" else "Loudspeaker position"
 

@@ -72,7 +72,7 @@ with common.fenced():
     table = {"Hz": [f"{f:g}" for f in assessment.result.nominal_hz]}
     for name in shown:
         if name in columns:
-            table[name.replace("_prime", "'")] = ["" if v is None else f"{v:.1f}" for v in columns[name].rounded(1)]
+            table[common.column_title(name)] = ["" if v is None else f"{v:.1f}" for v in columns[name].rounded(1)]
     table["limit"] = ["bound" if flag else "" for flag in assessment.result.limited]
     st.table(pd.DataFrame(table).set_index("Hz"))    # every band shown: nothing to scroll on a phone
 
