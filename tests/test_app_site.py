@@ -225,3 +225,10 @@ def test_messages_name_roles_in_the_pickers_words():
 def test_band_table_headers_have_no_underscores():
     from fieldtl.ui.common import column_title
     assert [column_title(n) for n in ("R_prime", "L_prime_n", "L_prime_nT", "DnT")] == ["R'", "L'n", "L'nT", "DnT"]
+
+
+def test_the_construction_page_shows_no_internal_notes(data_dir, demo_address):
+    at = _open("views/construction.py", *demo_address)
+    shown = _texts(at).lower()
+    assert "predicted rw" in shown and "from memory" not in shown and "facts sheet" not in shown
+    assert "the tool's default, check against your copy of the standard" in shown

@@ -6,6 +6,7 @@ import altair as alt
 import pandas as pd
 
 from fieldtl.assess import Assessment
+from fieldtl.construction import Comparison
 
 FONT_PX = 12          # at least 11 px on a 390 px phone: Vega-Lite draws text at this size, unscaled
 MEASURED_COLOUR = "#1b4f72"
@@ -40,3 +41,20 @@ def rating_chart(assessment: Assessment) -> alt.Chart | None:
                                                                      f"{rating.single_number_db} dB")
     return chart.configure_axis(labelFontSize=FONT_PX, titleFontSize=FONT_PX).configure_title(
         fontSize=FONT_PX, limit=360).configure_legend(labelFontSize=FONT_PX)
+
+
+def construction_chart(check: Comparison) -> alt.Chart:
+    """Predicted R of the declared build-up and the measured R' per band, text at FONT_PX."""
+    frame = pd.DataFrame([{"band": f"{f:g}", "value": v, "curve": name}
+                          for name, spectrum in (("R predicted", check.predicted_db), ("R' measured", check.measured_db))
+                          for f, v in zip(spectrum.nominal_hz, spectrum.values) if v is not None])
+    order = [f"{f:g}" for f in check.gap_db.nominal_hz]
+    chart = alt.Chart(frame).mark_line(point=True).encode(
+        x=alt.X("band:N", sort=order, title="one-third-octave band, Hz", axis=alt.Axis(labelAngle=-90)),
+        y=alt.Y("value:Q", title="dB", scale=alt.Scale(zero=False)),
+        color=alt.Color("curve:N", scale=alt.Scale(range=[REFERENCE_COLOUR, MEASURED_COLOUR]),
+                        legend=alt.Legend(orient="bottom", title=None)),
+        strokeDash=alt.StrokeDash("curve:N", legend=None),
+        tooltip=["band", "curve", alt.Tooltip("value:Q", format=".1f")]).properties(height=300)
+    return chart.configure_axis(labelFontSize=FONT_PX, titleFontSize=FONT_PX).configure_legend(
+        labelFontSize=FONT_PX)

@@ -5,9 +5,9 @@ import streamlit as st
 
 from fieldtl.construction.predict import predict
 from fieldtl.errors import FieldTLError
-from fieldtl.report.plot import construction_figure
+from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK, marked
 from fieldtl.store import declared_construction
-from fieldtl.ui import cached, common, gate
+from fieldtl.ui import cached, chart, common, gate
 
 
 
@@ -38,26 +38,30 @@ with common.fenced():
              f"{prediction.surface_mass_kg_m2:.0f} kg/m², critical frequency {prediction.critical_frequency_hz:.0f} Hz"
              + (f", mass-air-mass resonance {prediction.mass_air_mass_resonance_hz:.0f} Hz"
                 if prediction.mass_air_mass_resonance_hz else "") + ".")
-    st.caption(common.md(prediction.method))
+    st.caption(common.md(marked(prediction.method)))
     check = None
     try:
         check = cached.assessment(store.survey_for_test(test.id)).construction_check
     except FieldTLError as exc:
         st.caption(f"No measured R' yet: {common.md(exc)}")
     if check is not None:
-        st.pyplot(construction_figure(check))
+        st.altair_chart(chart.construction_chart(check), width="stretch")
         st.caption(f"Per band, {len(check.gap_db.nominal_hz)} bands (the table scrolls down):")
         st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in check.gap_db.nominal_hz],
                                    "R predicted": _one_decimal(check.predicted_db),
                                    "R' measured": _one_decimal(check.measured_db),
                                    "gap": _one_decimal(check.gap_db)}), hide_index=True)
         for finding in check.findings:
-            st.warning(f"**Check**: {common.md(finding.message)} *What to do:* {common.md(finding.action)}")
+            st.warning(f"**Check**: {common.md(marked(finding.message))} *What to do:* "
+                       f"{common.md(marked(finding.action))}")
     else:
         st.caption(f"Per band, {len(prediction.r_db.nominal_hz)} bands (the table scrolls down):")
         st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in prediction.r_db.nominal_hz],
                                    "R predicted": _one_decimal(prediction.r_db)}), hide_index=True)
     with st.expander("What the prediction leaves out"):
-        for note in prediction.notes:
+        notes = [marked(note) for note in prediction.notes]
+        for note in notes:
             st.write(f"- {common.md(note)}")
+        if any(note.endswith(UNCONFIRMED_MARK) for note in notes):
+            st.write(common.md(EXPLANATION))
     common.cautions()
