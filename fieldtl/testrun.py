@@ -34,8 +34,8 @@ if TYPE_CHECKING:
 
 TakesDone = Callable[[int, int], None]      # (takes measured so far, takes to measure)
 
-__all__ = ["MeasurementCache", "TakeOutcome", "TestTakes", "assess_survey", "assess_test", "measure_test",
-           "measure_test_takes", "store_cache"]
+__all__ = ["BackgroundMeasurer", "MeasurementCache", "TakeOutcome", "TestTakes", "assess_survey", "assess_test",
+           "measure_test_takes", "store_cache", "user_cache"]
 
 
 def assess_survey(survey: Survey, *, cache: MeasurementCache | None = None, options: AssessOptions = AssessOptions(),
@@ -77,12 +77,6 @@ def user_cache() -> Iterator[MeasurementCache | None]:
         yield store_cache(store)
     finally:
         store.close()
-
-
-def measure_test(store: Store, test_id: int, *, progress: Progress | None = None) -> MeasuredSurvey:
-    """Every included take of a stored test measured (or read from the store's measurements)."""
-    survey = store.survey_for_test(test_id)
-    return measure_with(survey, cache=store_cache(store, store.list_takes(test_id)), progress=progress)
 
 
 def assess_test(store: Store, test_id: int, *, options: AssessOptions = AssessOptions(),
