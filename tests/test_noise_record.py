@@ -265,3 +265,31 @@ def test_low_frequency_view_reads_a_tone_at_mid_band(nominal_hz):
     # within 0.3 dB: a tone between the 1 Hz bins of the 1 s segments spreads part of its energy
     # (sinc² sidelobes of the rectangular segment) beyond its band; worst at 31.6 Hz, 0.62 bins off
     assert record.intervals[0].band_leq_db[record.bands_hz.index(nominal_hz)] == pytest.approx(-30.0, abs=0.3)
+
+
+def test_fixed_level_events():
+    # margin off, fixed level -32.2 dB re full scale: burst 6 (exactly -32.0) is an event, burst 5 (-33.0) is not
+    settings = RecordSettings(zone_name="Europe/London", interval_min=5, event_margin_db=None, event_level_db=-32.2)
+    source = night_source(duration_s=NIGHT_S, background_dbfs=BACKGROUND_DBFS, bursts=BURSTS)
+    record = analyse_sources([source], settings, start=datetime(2026, 11, 28, 23, 0, tzinfo=LONDON))
+    start = datetime(2026, 11, 28, 23, 0, tzinfo=LONDON)
+    found = [(e.start - start).total_seconds() for e in record.events]
+    # F rise from the background B to the burst level L crosses the threshold Θ (mean squares) after
+    # t = -τ ln(1 - (Θ - B)/(L - B)), τ = 0.125 s (IEC 61672-1 exponential averaging): 0.385 s for burst 6
+    def crossing_s(burst: Burst) -> float:
+        b, level, theta = (10 ** (v / 10) for v in (BACKGROUND_DBFS, burst.level_dbfs, -32.2))
+        return -0.125 * math.log(1 - (theta - b) / (level - b))
+    assert found == pytest.approx([b.start_s + crossing_s(b) for b in BURSTS[6:]], abs=0.015)   # 10 ms steps
+
+
+@pytest.mark.parametrize(("gap_s", "events"), [(0.8, 1), (2.0, 2)])
+def test_short_dips_do_not_split_an_event(gap_s, events):
+    # +20 dB bursts: F decays 10 lg(e)/0.125 s = 34.7 dB/s (IEC 61672-1), so LAF stays above the +10 dB
+    # threshold 0.29 s after a burst ends. A 0.8 s gap dips below for about 0.5 s (< merge_gap_s = 1 s):
+    # one event; a 2 s gap dips for about 1.7 s: two events.
+    bursts = (Burst(200.0, 2.0, -30.0), Burst(202.0 + gap_s, 2.0, -30.0))
+    source = night_source(duration_s=420.0, background_dbfs=-50.0, bursts=bursts)
+    record = analyse_sources([source], RecordSettings(interval_min=5), start=datetime(2026, 1, 1, tzinfo=timezone.utc))
+    assert len(record.events) == events
+    if events == 1:   # one event spans both bursts: LAE = 10 lg(2 x 2 s x 10^(-3)) + the gap's background
+        assert record.events[0].lae_db == pytest.approx(10 * math.log10(4.0 * 1e-3), abs=0.1)
