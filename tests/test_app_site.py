@@ -232,3 +232,11 @@ def test_the_construction_page_shows_no_internal_notes(data_dir, demo_address):
     shown = _texts(at).lower()
     assert "predicted rw" in shown and "from memory" not in shown and "facts sheet" not in shown
     assert "the tool's default, check against your copy of the standard" in shown
+
+
+def test_the_report_page_makes_the_pdf_of_the_open_test(data_dir, demo_address):
+    at = _open("views/report.py", *demo_address)
+    next(b for b in at.button if b.label == "Make the PDF report").click().run()
+    assert not at.exception, [e.value for e in at.exception]
+    test_id, pdf = at.session_state["fieldtl.report_pdf"]
+    assert test_id == demo_address[1] and pdf.startswith(b"%PDF-")
