@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 import struct
 from dataclasses import dataclass
-from datetime import date, datetime, time
+from datetime import datetime, time
 from pathlib import Path
 
 import numpy as np
@@ -77,4 +77,4 @@ def write_wav(path: Path, samples: np.ndarray, *, sample_rate_hz: int, local_sta
     return path
 
 
-__all__ = ["Burst", "amplitude", "date", "night_blocks", "night_source", "write_wav"]
+__all__ = ["Burst", "amplitude", "night_blocks", "night_source", "write_wav"]
