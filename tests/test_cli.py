@@ -10,6 +10,7 @@ import pytest
 import soundfile
 
 from fieldtl.cli import main
+from fieldtl.errors import InputError
 
 
 def _run(capsys, *argv):
@@ -214,6 +215,35 @@ def test_cause_unsupported_plot_suffix_refused_before_the_analysis(tmp_path, cap
     target = tmp_path / (f"r.{suffix}" if suffix else "r")
     err = _one_line_refusal(capsys, "assess", survey, "--plot", target)
     assert "--plot must end in one of .png" in err and not target.exists()
+
+
+@pytest.mark.parametrize("name", ["", "."])
+def test_plot_without_a_file_name_writes_nothing_in_the_working_folder(tmp_path, capsys, monkeypatch, name):
+    # matplotlib strips trailing dots from a name without a suffix and adds ".png": "" or "." would
+    # leave a hidden ".png" in the working folder (once found at the repository root after a test run).
+    survey = _csv_survey(tmp_path)
+    work = tmp_path / "work"
+    work.mkdir()
+    monkeypatch.chdir(work)
+    assert "--plot must end in one of .png" in _one_line_refusal(capsys, "assess", survey, "--plot", name)
+    assert list(work.iterdir()) == []
+
+
+@pytest.mark.parametrize("name", ["", ".", "chart"])
+def test_chart_writer_refuses_a_name_without_a_suffix(tmp_path, monkeypatch, name):
+    # The same guard one layer down, for callers that do not go through the CLI's checks.
+    from fieldtl.report.plot import save_assessment_plot
+    from fieldtl.survey import load_survey
+    from fieldtl.testrun import assess_survey
+
+    assessment = assess_survey(load_survey(_csv_survey(tmp_path)))
+    monkeypatch.chdir(tmp_path)
+    before = sorted(tmp_path.iterdir())
+    with pytest.raises(InputError, match="needs a name ending in .png") as caught:
+        save_assessment_plot(assessment, name)
+    assert "\n" not in str(caught.value)
+    assert sorted(tmp_path.iterdir()) == before
+    assert save_assessment_plot(assessment, "chart.png").read_bytes()[:4] == b"\x89PNG"
 
 
 def test_cause_plot_suffix_in_capitals_is_accepted(tmp_path, capsys):

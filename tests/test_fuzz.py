@@ -27,9 +27,13 @@ CORPUS_SEED = 20240801
 CORPUS_CASES = 360          # 60 of each kind: band CSV, survey, construction, layers, audio, options
 
 
-def test_seeded_corpus_through_the_command(tmp_path):
+def test_seeded_corpus_through_the_command(tmp_path, monkeypatch):
     warnings.simplefilter("ignore")
+    work = tmp_path / "work"        # the working folder: an output name that resolves to it lands here
+    work.mkdir()
+    monkeypatch.chdir(work)
     outcomes = [run_case(kind, argv) for kind, argv in fuzz_cases(CORPUS_SEED, CORPUS_CASES, tmp_path)]
+    assert list(work.iterdir()) == []
     problems = [(o.problem, o.cause, o.argv[:3]) for o in outcomes if o.problem]
     assert problems == []
     refused = sum(o.code == 2 for o in outcomes)

@@ -19,6 +19,7 @@ from fieldtl.bands import BandSpectrum
 from fieldtl.construction import Comparison
 from fieldtl.errors import InputError
 from fieldtl.rating import Rating
+from fieldtl.validate import file_label
 
 MEASURED_COLOUR = "#1b4f72"
 REFERENCE_COLOUR = "#7d7d7d"
@@ -78,8 +79,15 @@ def assessment_figure(assessment: Assessment, *, descriptor: str | None = None) 
 
 
 def save_assessment_plot(assessment: Assessment, path: str | Path, *, descriptor: str | None = None) -> Path:
-    """Write the chart as PNG (or any format matplotlib infers from the suffix)."""
+    """Write the chart as PNG (or any format matplotlib infers from the suffix).
+
+    A name without a suffix is refused: matplotlib would add ".png" itself, and "" or "." would
+    become a hidden file ".png" in the working folder.
+    """
     target = Path(path)
+    if not target.suffix:
+        raise InputError(f"{file_label(target)}: the chart file needs a name ending in .png (or another "
+                         "picture format)")
     assessment_figure(assessment, descriptor=descriptor).savefig(target)
     return target
 
