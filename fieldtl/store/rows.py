@@ -1,4 +1,7 @@
-"""SQLite rows ↔ the store's values (fieldtl.store.schema), and the few statements they share."""
+"""SQLite rows ↔ the store's values (fieldtl.store.schema), and the few statements they share.
+
+The statements are also PostgreSQL's (fieldtl.store.postgres binds the same ``?`` parameters):
+new ids come back through ``RETURNING id``, which both speak (SQLite from 3.35)."""
 
 from __future__ import annotations
 
@@ -48,17 +51,17 @@ def setup_values(setup: TestSetup) -> tuple[Any, ...]:
 
 def insert_project(db: sqlite3.Connection, project: Project) -> int:
     cursor = db.execute("INSERT INTO projects (name, client, address, engineer, created_at, updated_at) "
-                        "VALUES (?, ?, ?, ?, ?, ?)", (project.name, project.client, project.address,
+                        "VALUES (?, ?, ?, ?, ?, ?) RETURNING id", (project.name, project.client, project.address,
                                                       project.engineer, project.created_at, project.updated_at))
-    return int(cursor.lastrowid)
+    return int(cursor.fetchone()[0])
 
 
 def insert_test(db: sqlite3.Connection, project_id: int, test: TestRecord) -> int:
     cursor = db.execute(f"INSERT INTO tests (project_id, {', '.join(TEST_COLUMNS)}, band_levels_csv, created_at, "
-                        f"updated_at) VALUES ({', '.join('?' * (len(TEST_COLUMNS) + 4))})",
+                        f"updated_at) VALUES ({', '.join('?' * (len(TEST_COLUMNS) + 4))}) RETURNING id",
                         (project_id, *setup_values(test.setup), test.band_levels_csv, test.created_at,
                          test.updated_at))
-    return int(cursor.lastrowid)
+    return int(cursor.fetchone()[0])
 
 
 def insert_take(db: sqlite3.Connection, row: Mapping[str, Any]) -> int:
@@ -68,8 +71,8 @@ def insert_take(db: sqlite3.Connection, row: Mapping[str, Any]) -> int:
                                                                            allow_nan=False)
     values["excluded"] = int(bool(values["excluded"]))
     cursor = db.execute(f"INSERT INTO takes ({', '.join(TAKE_COLUMNS)}) "
-                        f"VALUES ({', '.join('?' * len(TAKE_COLUMNS))})", tuple(values[c] for c in TAKE_COLUMNS))
-    return int(cursor.lastrowid)
+                        f"VALUES ({', '.join('?' * len(TAKE_COLUMNS))}) RETURNING id", tuple(values[c] for c in TAKE_COLUMNS))
+    return int(cursor.fetchone()[0])
 
 
 def take_fields(take: TakeRecord) -> dict[str, Any]:
