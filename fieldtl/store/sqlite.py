@@ -23,6 +23,7 @@ from fieldtl.audio.ingest import open_recording
 from fieldtl.errors import InputError, StoreError
 from fieldtl.store import rows
 from fieldtl.store.connection import Database
+from fieldtl.store.errors import StaleEditError
 from fieldtl.store.files import (STALE_INCOMING_S, WHOLE_READ_ROLES, check_audio_file, incoming_name,
                                  leftover_files, place_file, write_durably)
 from fieldtl.store.measurements import MeasurementRows
@@ -151,12 +152,19 @@ class Store:
             rows.touch_project(db, project_id, now)
         return test
 
-    def update_test(self, test_id: int, setup: TestSetup) -> TestRecord:
-        """Replace the test's setup; a new test type must still admit every stored take and band column."""
+    def update_test(self, test_id: int, setup: TestSetup, *, expected_updated_at: str | None = None) -> TestRecord:
+        """Replace the test's setup; a new test type must still admit every stored take and band column.
+
+        ``expected_updated_at`` (the updated_at of the copy being edited) refuses a stale edit with
+        StaleEditError when the test changed meanwhile (optimistic check; nothing is overwritten).
+        """
         now = utc_now()
         where = f"test {echo(setup.title)}"
         with self._write() as db:
             current = self._test(db, test_id)
+            if expected_updated_at is not None and current.updated_at != expected_updated_at:
+                raise StaleEditError(f"{where}: changed by someone else at {current.updated_at[:19]} UTC after "
+                                     "you opened it; reload the test and make your change again")
             check_test_texts(setup, current.band_levels_csv, where)
             if setup.test_type != current.setup.test_type:
                 for take in self._takes(db, test_id):
