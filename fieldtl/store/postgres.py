@@ -1,0 +1,306 @@
+"""The team server's store: the same Store on PostgreSQL, with accounts, per-project roles, sign-offs
+and an audit of every change.
+
+``ServerStore.open("postgresql://...")`` is the server's own handle (the `fieldtl` command on the
+server: create accounts, grant roles, see everything). :meth:`ServerStore.login` gives an
+account's handle, sharing the pool: every Store method then checks the account's role on the
+project it touches, inside the same transaction as the read or write, and raises
+PermissionDenied (a StoreError, one line) when the role does not allow it:
+
+* owner: everything on the project, and grants roles on it;
+* tester: reads, adds and changes tests and takes;
+* reviewer: reads and signs tests off, changes nothing else.
+
+An account sees only the projects it has a role on, and owns the projects it creates. Each write
+records the account in the transaction (``fieldtl.user``), and triggers write the audit rows.
+
+Audio stays content-addressed in a folder (``audio_dir``; on several app servers a shared
+folder): the analysis reads recordings from files in blocks, a file is durable before the row
+naming it commits (as in SQLite), and the database stays small for backups and replicas.
+"""
+
+from __future__ import annotations
+
+import functools
+from collections.abc import Iterator
+from contextlib import contextmanager
+from contextvars import ContextVar
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from fieldtl.errors import InputError
+from fieldtl.store.connection import default_data_dir
+from fieldtl.store.errors import PermissionDenied
+from fieldtl.store.measurements import MeasurementRows
+from fieldtl.store.pg_database import PgDatabase, Session
+from fieldtl.store.pg_schema import PROJECT_ROLES
+from fieldtl.store.schema import Project, check_text, utc_now
+from fieldtl.store.sqlite import AUDIO_FOLDER, DEFAULT_MAX_TAKE_BYTES, Store
+from fieldtl.validate import NAME_CHARS, NOTE_CHARS, choice, echo
+
+READ = frozenset(PROJECT_ROLES)
+WRITE = frozenset({"owner", "tester"})
+OWNER = frozenset({"owner"})
+SIGN = frozenset({"owner", "reviewer"})
+MIN_PASSWORD_CHARS = 10      # common practice (at least 8 is the usual floor for user-chosen passwords)
+
+# What each inherited Store method needs: (what its first argument names, roles allowed).
+RULES: dict[str, tuple[str, frozenset[str]]] = {
+    "update_project": ("project", OWNER), "get_project": ("project", READ), "delete_project": ("project", OWNER),
+    "create_test": ("project", WRITE), "list_tests": ("project", READ), "snapshot": ("project", READ),
+    "update_test": ("test", WRITE), "get_test": ("test", READ), "set_band_levels": ("test", WRITE),
+    "add_take": ("test", WRITE), "list_takes": ("test", READ), "missing_roles": ("test", READ),
+    "survey_for_test": ("test", READ), "get_take": ("take", READ), "set_take_excluded": ("take", WRITE),
+    "set_take_channel": ("take", WRITE), "update_take": ("take", WRITE), "delete_take": ("take", WRITE),
+}
+_PROJECT_OF = {"project": "SELECT id FROM projects WHERE id = ?",
+               "test": "SELECT project_id FROM tests WHERE id = ?",
+               "take": "SELECT t.project_id FROM takes k JOIN tests t ON t.id = k.test_id WHERE k.id = ?"}
+_NEED: ContextVar[tuple[str, str, int, frozenset[str]] | None] = ContextVar("fieldtl_store_need", default=None)
+
+
+@dataclass(frozen=True, slots=True)
+class Account:
+    id: int
+    name: str
+    is_admin: bool
+
+
+@dataclass(frozen=True, slots=True)
+class AuditEntry:
+    changed_at: str            # ISO 8601, UTC
+    user_name: str
+    action: str                # insert | update | delete
+    table_name: str
+    row_id: int | None
+    detail: dict[str, Any]
+
+
+@dataclass(frozen=True, slots=True)
+class SignOff:
+    test_id: int
+    user_name: str
+    note: str
+    signed_at: str
+
+
+class PgMeasurementRows(MeasurementRows):
+    def put(self, key: str, *, sha256: str, analysis_version: str, settings_json: str, measurement_json: str) -> None:
+        with self._database.write() as db:
+            db.execute("INSERT INTO take_measurements (key, sha256, analysis_version, settings, measurement, "
+                       "created_at) VALUES (?, ?, ?, ?, ?, ?) ON CONFLICT (key) DO UPDATE SET "
+                       "sha256 = EXCLUDED.sha256, analysis_version = EXCLUDED.analysis_version, "
+                       "settings = EXCLUDED.settings, measurement = EXCLUDED.measurement, "
+                       "created_at = EXCLUDED.created_at",
+                       (key, sha256, analysis_version, settings_json, measurement_json, utc_now()))
+
+
+class ServerStore(Store):
+    """A Store on PostgreSQL; ``account`` None is the server's own handle (no role checks)."""
+
+    def __init__(self, database: PgDatabase, *, audio_dir: Path, max_take_bytes: int,
+                 account: Account | None, owns_database: bool) -> None:
+        super().__init__(database, folder=None, audio_dir=audio_dir, max_take_bytes=max_take_bytes, scratch=None)  # type: ignore[arg-type]
+        self.account = account
+        self._owns_database = owns_database
+        self.measurements = PgMeasurementRows(database)   # type: ignore[arg-type]
+        self._write, self._read = self._checked_write, self._checked_read   # type: ignore[method-assign]
+
+    @classmethod
+    def open(cls, url: str | Path, *, audio_dir: Path | None = None,   # type: ignore[override]
+             max_take_bytes: int = DEFAULT_MAX_TAKE_BYTES) -> ServerStore:
+        """Connect (creating and migrating the schema if needed); audio in ``audio_dir``, by default
+        the ``audio`` folder of the user's data folder (FIELDTL_DATA_DIR)."""
+        audio_dir = default_data_dir() / AUDIO_FOLDER if audio_dir is None else Path(audio_dir)
+        audio_dir.mkdir(parents=True, exist_ok=True)
+        return cls(PgDatabase(str(url)), audio_dir=audio_dir, max_take_bytes=max_take_bytes, account=None,
+                   owns_database=True)
+
+    def close(self) -> None:
+        if self._owns_database:
+            super().close()
+
+    def schema_state(self) -> tuple[int, tuple[str, ...]]:
+        """(number of migrations applied, their names in the order applied)."""
+        with self._read() as db:
+            names = tuple(r[0] for r in db.execute("SELECT name FROM schema_migrations ORDER BY applied_at, name"))
+        return len(names), names
+
+    # --- accounts ----------------------------------------------------------------------------------
+
+    def create_account(self, name: str, password: str, *, admin: bool = False) -> Account:
+        """A new account (server handle or an admin account only); the password is stored as an Argon2 hash."""
+        self._require_admin("create accounts")
+        check_text(name, "account name", max_chars=NAME_CHARS, empty=False)
+        _check_password(password)
+        with self._write() as db:
+            if db.execute("SELECT 1 FROM users WHERE name = ?", (name,)).fetchone() is not None:
+                raise InputError(f"account {echo(name)} exists already")
+            row = db.execute("INSERT INTO users (name, password_hash, is_admin, created_at) VALUES (?, ?, ?, ?) "
+                             "RETURNING id", (name, _hasher().hash(password), bool(admin), utc_now())).fetchone()
+        return Account(int(row[0]), name, bool(admin))
+
+    def login(self, name: str, password: str) -> ServerStore:
+        """The account's handle (sharing this store's pool); PermissionDenied if name or password is wrong."""
+        hasher = _hasher()
+        import argon2
+        with self._database.read() as db:
+            row = db.execute("SELECT id, password_hash, is_admin FROM users WHERE name = ?", (name,)).fetchone()
+        try:
+            if row is None:
+                hasher.hash(password)         # as slow as a wrong password: names cannot be probed by timing
+                raise argon2.exceptions.VerificationError
+            hasher.verify(row[1], password)
+        except argon2.exceptions.VerificationError:
+            raise PermissionDenied("account name or password not recognised") from None
+        return ServerStore(self._database, audio_dir=self.audio_dir, max_take_bytes=self.max_take_bytes,  # type: ignore[arg-type]
+                           account=Account(int(row[0]), name, bool(row[2])), owns_database=False)
+
+    def grant(self, project_id: int, account_name: str, role: str) -> None:
+        """Give ``account_name`` ``role`` on the project (replacing its role there); owners and admins only."""
+        choice(role, PROJECT_ROLES, "role")
+        token = _NEED.set(("grant", "project", project_id, OWNER))
+        try:
+            with self._write() as db:
+                user = db.execute("SELECT id FROM users WHERE name = ?", (account_name,)).fetchone()
+                if user is None:
+                    raise InputError(f"no account named {echo(account_name)}")
+                self._project(db, project_id)
+                db.execute("INSERT INTO project_roles (project_id, user_id, role) VALUES (?, ?, ?) "
+                           "ON CONFLICT (project_id, user_id) DO UPDATE SET role = EXCLUDED.role",
+                           (project_id, user[0], role))
+        finally:
+            _NEED.reset(token)
+
+    def role_on(self, project_id: int) -> str | None:
+        """This account's role on the project (None: no role; the server handle: "owner")."""
+        if self.account is None:
+            return "owner"
+        with self._database.read() as db:
+            row = db.execute("SELECT role FROM project_roles WHERE project_id = ? AND user_id = ?",
+                             (project_id, self.account.id)).fetchone()
+        return None if row is None else row[0]
+
+    def list_projects(self) -> tuple[Project, ...]:
+        """The projects this account has a role on (all for the server handle and admins)."""
+        if self.account is None or self.account.is_admin:
+            return super().list_projects()
+        with self._read() as db:
+            found = db.execute("SELECT p.* FROM projects p JOIN project_roles r ON r.project_id = p.id "
+                               "WHERE r.user_id = ? ORDER BY p.updated_at DESC, p.id DESC",
+                               (self.account.id,)).fetchall()
+        return tuple(Project(*r) for r in found)
+
+    def clean_files(self, **kwargs: Any) -> tuple[Path, ...]:
+        self._require_admin("remove unused audio files")
+        return super().clean_files(**kwargs)
+
+    # --- review ------------------------------------------------------------------------------------
+
+    def sign_off(self, test_id: int, note: str = "") -> SignOff:
+        """Record that this account (a reviewer or owner of the project) signs the test off."""
+        check_text(note, "sign-off note", max_chars=NOTE_CHARS)
+        name = "(server)" if self.account is None else self.account.name
+        signed = SignOff(test_id, name, note, utc_now())
+        token = _NEED.set(("sign off", "test", test_id, SIGN))
+        try:
+            with self._write() as db:
+                self._test(db, test_id)
+                db.execute("INSERT INTO sign_offs (test_id, user_name, note, signed_at) VALUES (?, ?, ?, ?)",
+                           (test_id, name, note, signed.signed_at))
+        finally:
+            _NEED.reset(token)
+        return signed
+
+    def sign_offs(self, test_id: int) -> tuple[SignOff, ...]:
+        with self._guard("read", "test", test_id, READ), self._read() as db:
+            found = db.execute("SELECT test_id, user_name, note, signed_at FROM sign_offs WHERE test_id = ? "
+                               "ORDER BY id", (test_id,)).fetchall()
+        return tuple(SignOff(*r) for r in found)
+
+    def audit_for_test(self, test_id: int) -> tuple[AuditEntry, ...]:
+        """Every recorded change of the test and its takes and sign-offs, oldest first."""
+        with self._guard("read", "test", test_id, READ), self._read() as db:
+            found = db.execute("SELECT to_char(changed_at AT TIME ZONE 'UTC', 'YYYY-MM-DD\"T\"HH24:MI:SS.US\"Z\"'), "
+                               "user_name, action, table_name, row_id, detail FROM audit WHERE test_id = ? "
+                               "ORDER BY id", (test_id,)).fetchall()
+        return tuple(AuditEntry(*r) for r in found)
+
+    # --- internals ---------------------------------------------------------------------------------
+
+    @contextmanager
+    def _guard(self, what: str, kind: str, ident: int, roles: frozenset[str]) -> Iterator[None]:
+        token = _NEED.set((what, kind, ident, roles))
+        try:
+            yield
+        finally:
+            _NEED.reset(token)
+
+    @contextmanager
+    def _checked_write(self) -> Iterator[Session]:
+        with self._database.write() as db:   # type: ignore[attr-defined]
+            name = "(server)" if self.account is None else self.account.name
+            user_id = "" if self.account is None else str(self.account.id)
+            db.execute("SELECT set_config('fieldtl.user', ?, true), set_config('fieldtl.user_id', ?, true)",
+                       (name, user_id))
+            self._check_role(db)
+            yield db
+
+    @contextmanager
+    def _checked_read(self) -> Iterator[Session]:
+        with self._database.read() as db:    # type: ignore[attr-defined]
+            self._check_role(db)
+            yield db
+
+    def _check_role(self, db: Session) -> None:
+        need = _NEED.get()
+        if need is None or self.account is None or self.account.is_admin:
+            return
+        what, kind, ident, roles = need
+        found = db.execute(_PROJECT_OF[kind], (int(ident),)).fetchone()
+        if found is None:
+            return                    # the store's own lookup then says there is no such row
+        row = db.execute("SELECT role FROM project_roles WHERE project_id = ? AND user_id = ?",
+                         (found[0], self.account.id)).fetchone()
+        if row is None or row[0] not in roles:
+            held = "no role" if row is None else f"the {row[0]} role"
+            raise PermissionDenied(f"account {echo(self.account.name)} has {held} on project {found[0]} and "
+                                   f"may not {what.replace('_', ' ')}")
+
+    def _require_admin(self, what: str) -> None:
+        if self.account is not None and not self.account.is_admin:
+            raise PermissionDenied(f"account {echo(self.account.name)} may not {what} (server administrators only)")
+
+
+def _guarded(name: str, kind: str, roles: frozenset[str]) -> Any:
+    base = getattr(Store, name)
+
+    @functools.wraps(base)
+    def method(self: ServerStore, ident: int, *args: Any, **kwargs: Any) -> Any:
+        token = _NEED.set((name, kind, ident, roles))
+        try:
+            return base(self, ident, *args, **kwargs)
+        finally:
+            _NEED.reset(token)
+    return method
+
+
+for _name, (_kind, _roles) in RULES.items():
+    setattr(ServerStore, _name, _guarded(_name, _kind, _roles))
+
+
+def _check_password(password: Any) -> None:
+    check_text(password, "password", max_chars=NAME_CHARS, empty=False)
+    if len(password) < MIN_PASSWORD_CHARS:
+        raise InputError(f"password: at least {MIN_PASSWORD_CHARS} characters, please")
+
+
+@functools.cache
+def _hasher() -> Any:
+    """Argon2id with argon2-cffi's current default parameters (RFC 9106)."""
+    try:
+        import argon2
+    except ImportError:
+        raise InputError("accounts need the argon2-cffi package (pip install 'fieldtl[team]')") from None
+    return argon2.PasswordHasher()
