@@ -45,10 +45,15 @@ def gated_app_url(tmp_path):
 
 
 def _contrast(page, selector) -> float:
-    """WCAG 2.x contrast ratio of the first element's text colour on white (the page background)."""
+    """WCAG 2.x contrast ratio of the first element's text on white (the page background), its colour
+    blended with white by the opacity of the element and every ancestor, as the browser paints it."""
     return page.evaluate("""(selector) => {
-        const rgb = getComputedStyle(document.querySelector(selector)).color.match(/[0-9.]+/g).map(Number);
-        const lin = rgb.slice(0, 3).map(c => { c /= 255; return c <= 0.03928 ? c / 12.92 : ((c + 0.055) / 1.055) ** 2.4; });
+        const element = document.querySelector(selector);
+        let opacity = 1;
+        for (let e = element; e; e = e.parentElement) opacity *= Number(getComputedStyle(e).opacity);
+        const rgb = getComputedStyle(element).color.match(/[0-9.]+/g).map(Number)
+            .slice(0, 3).map(c => c * opacity + 255 * (1 - opacity));
+        const lin = rgb.map(c => { c /= 255; return c <= 0.03928 ? c / 12.92 : ((c + 0.055) / 1.055) ** 2.4; });
         const luminance = 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2];
         return 1.05 / (luminance + 0.05);
     }""", selector)

@@ -28,6 +28,7 @@ div[data-baseweb="select"] > div, .stTextInput input, .stNumberInput input { min
 /* information text at 4.5:1 or more on white (WCAG 2.x): captions and widget help darker than the default grey */
 [data-testid="stCaptionContainer"], [data-testid="stCaptionContainer"] p,
 [data-testid="stWidgetLabel"] p, [data-testid="stMarkdownContainer"] small { color: #474a54 !important; }
+[data-testid="stCaptionContainer"] { opacity: 1 !important; }
 </style>
 """
 

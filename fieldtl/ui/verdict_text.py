@@ -25,7 +25,7 @@ def finding_line(group: FindingGroup, *, with_action: bool = True) -> str:
     if group.take is not None:
         message = message[len(group.take):].lstrip(" ,:")
     if len(group.bands_hz) > 1:
-        message += f" (the same in {len(group.bands_hz) - 1} more band{'s' if len(group.bands_hz) > 2 else ''}: " \
+        message += f" (also at {len(group.bands_hz) - 1} more band{'s' if len(group.bands_hz) > 2 else ''}: " \
                    + ", ".join(f"{json_number(b)}" for b in group.bands_hz[1:]) + " Hz)"
     where = f"**{common.md(group.take)}**: " if group.take else ""
     line = f"{SEVERITY_WORDS.get(finding.severity, 'Note')}: {where}{common.md(message)}"
