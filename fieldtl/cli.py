@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from fieldtl import __version__
+from fieldtl.addresses import reachable_addresses
 from fieldtl.cautions import CAUTIONS, HEARING_CAUTION
 from fieldtl.cli_input import (EXIT_BAD_INPUT, LEVEL_DBFS, OneLineParser, channel_index, check_output, check_paths,
                                input_name, option_number, plot_suffixes, say)
@@ -342,7 +343,8 @@ def _run_app(args: argparse.Namespace) -> int:
     if args.cert is not None:
         command += ["--server.sslCertFile", str(args.cert.resolve()), "--server.sslKeyFile", str(args.key.resolve())]
     scheme = "https" if args.cert else "http"
-    print(f"fieldtl app on {scheme}://{args.host}:{args.port}  (store: {data_dir}); Ctrl+C stops it")
+    urls = ", ".join(f"{scheme}://{a}:{args.port}" for a in reachable_addresses(args.host))   # never 0.0.0.0
+    print(f"fieldtl app on {urls}  (store: {data_dir}); Ctrl+C stops it")
     print(f"CAUTION: {CAUTIONS[0]}\nCAUTION: {CAUTIONS[1]}")
     sys.stdout.flush()
     sys.stderr.flush()
