@@ -2,10 +2,10 @@
 
     python store_writer.py DATABASE WORKER COUNT [GO_FILE]
 
-Opens (creating and migrating if needed) the store at DATABASE, adds one project and one test,
-then COUNT takes of distinct 0.1 s tones, printing ``committed <take id>`` after each commit.
-With GO_FILE it prints ``ready`` and waits for that file to exist before opening the store, so
-two writers can be started at the same moment.
+Opens (creating and migrating if needed) the store at DATABASE (a SQLite path or a postgresql://
+URL), adds one project and one test, then COUNT takes of distinct 0.1 s tones, printing
+``committed <take id>`` after each commit. With GO_FILE it prints ``ready`` and waits for that
+file to exist before opening the store, so two writers can be started at the same moment.
 """
 
 from __future__ import annotations
@@ -18,7 +18,8 @@ from pathlib import Path
 import make_data
 import soundfile
 
-from fieldtl.store import Store, TestSetup
+from fieldtl.store import TestSetup
+from fieldtl.store.location import open_store
 
 
 def tone_wav(worker: int, number: int) -> bytes:
@@ -33,7 +34,7 @@ def main(database: str, worker: int, count: int, go_file: str | None = None) -> 
         print("ready", flush=True)
         while not Path(go_file).exists():
             time.sleep(0.005)
-    with Store.open(database) as store:
+    with open_store(database) as store:
         project = store.create_project(f"Writer {worker}")
         test = store.create_test(project.id, TestSetup(title=f"Writer {worker}", test_type="airborne",
                                                        receiving_volume_m3=30.0))
