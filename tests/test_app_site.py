@@ -240,3 +240,34 @@ def test_the_report_page_makes_the_pdf_of_the_open_test(data_dir, demo_address):
     assert not at.exception, [e.value for e in at.exception]
     test_id, pdf = at.session_state["fieldtl.report_pdf"]
     assert test_id == demo_address[1] and pdf.startswith(b"%PDF-")
+
+
+def _font_sizes(node):
+    """Every font size a Vega-Lite spec sets (keys ending in FontSize, and fontSize)."""
+    if isinstance(node, dict):
+        for key, value in node.items():
+            if key.lower().endswith("fontsize"):
+                yield value
+            yield from _font_sizes(value)
+    elif isinstance(node, list):
+        for item in node:
+            yield from _font_sizes(item)
+
+
+def test_results_chart_text_is_at_least_11_px_on_a_phone(data_dir, demo_address):
+    # Vega-Lite draws text at its configured pixel size whatever the chart's width; its own default
+    # axis label size is 10 px (Vega-Lite documentation, config.axis), so every size must be set.
+    at = _open("views/results.py", *demo_address)
+    charts = [c for c in _walk(at._tree) if getattr(c, "type", "") == "vega_lite_chart"]
+    spec = json.loads(charts[0].proto.spec)
+    config = spec["config"]
+    for part in ("labelFontSize", "titleFontSize"):
+        assert config["axis"][part] >= 11
+    assert config["title"]["fontSize"] >= 11 and config["legend"]["labelFontSize"] >= 11
+    assert min(_font_sizes(spec)) >= 11
+
+
+def _walk(node):
+    for child in getattr(node, "children", {}).values():
+        yield child
+        yield from _walk(child)
