@@ -256,7 +256,7 @@ def _font_sizes(node):
 
 def test_results_chart_text_is_at_least_11_px_on_a_phone(data_dir, demo_address):
     # Vega-Lite draws text at its configured pixel size whatever the chart's width; its own default
-    # axis label size is 10 px (Vega-Lite documentation, config.axis), so every size must be set.
+    # axis label size is 10 px (Vega config defaults, from memory), so every size must be set.
     at = _open("views/results.py", *demo_address)
     charts = [c for c in _walk(at._tree) if getattr(c, "type", "") == "vega_lite_chart"]
     spec = json.loads(charts[0].proto.spec)
