@@ -121,6 +121,8 @@ def _parser() -> argparse.ArgumentParser:
                                            "machine: a new random code, printed here)")
     app.add_argument("--cert", type=Path, help="TLS certificate (PEM); phones only allow recording over https")
     app.add_argument("--key", type=Path, help="TLS private key (PEM) for --cert")
+    app.add_argument("--store", help="team server: postgresql://user@host/database (also FIELDTL_STORE_URL; "
+                                     "default: the SQLite store in --data-dir)")
     app.add_argument("--https", action="store_true",
                      help="serve over https with a self-signed certificate kept in the data folder")
     app.set_defaults(run=_run_app)
@@ -138,6 +140,8 @@ def _parser() -> argparse.ArgumentParser:
 
     from fieldtl.noise.command import add_record_options
     add_record_options(sub).set_defaults(run=_run_record)
+    from fieldtl.team_command import add_team_options, run_team
+    add_team_options(sub).set_defaults(run=run_team)
     return parser
 
 
@@ -332,6 +336,10 @@ def _run_app(args: argparse.Namespace) -> int:
         print("https with a self-signed certificate: each browser asks once whether to trust it")
     env = {k: v for k, v in os.environ.items() if k != access.ENV_VAR}
     env["FIELDTL_DATA_DIR"] = str(data_dir)
+    if args.store is not None:          # the team server (fieldtl.store.location); its audio in data_dir
+        from fieldtl.store.location import STORE_URL_VARIABLE, check_store_url
+        check_store_url(args.store, "--store")
+        env[STORE_URL_VARIABLE] = args.store
     code = chosen or (access.new_code() if args.host not in LOCAL_HOSTS else None)
     if code is not None:
         env[access.ENV_VAR] = code

@@ -65,6 +65,10 @@ class PgDatabase:
         psycopg, psycopg_pool = _driver()
         self.name = shown_url(url)
         self._errors = psycopg.Error
+        try:                  # one plain connection first: an unreachable server is named at once
+            psycopg.connect(url, connect_timeout=int(CONNECT_TIMEOUT_S)).close()
+        except psycopg.Error as exc:
+            raise StoreError(f"{self.name}: cannot open the store ({_first_line(exc)})") from None
         try:
             self._pool = psycopg_pool.ConnectionPool(url, min_size=1, max_size=max_size, open=True,
                                                      kwargs={"autocommit": True}, timeout=CONNECT_TIMEOUT_S)
