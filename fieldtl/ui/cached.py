@@ -16,10 +16,12 @@ import streamlit as st
 
 from fieldtl.assess import Assessment
 from fieldtl.measure_cache import analysis_version
-from fieldtl.store import Store, default_database_path
+from fieldtl.store import Store
+from fieldtl.store.location import open_store
 from fieldtl.store.survey_import import import_survey
 from fieldtl.survey import Survey, load_survey
 from fieldtl.testrun import BackgroundMeasurer, TestTakes, assess_survey, measure_test_takes, store_cache
+from fieldtl.ui import login
 
 DEMO_SURVEY = Path(__file__).resolve().parents[2] / "sample_audio" / "survey.toml"
 DEMO_PROJECT = "Invented demo: Brackenfold House (a fictional building)"
@@ -36,9 +38,7 @@ def _release(opened: tuple[Store, BackgroundMeasurer]) -> None:
 def _opened() -> tuple[Store, BackgroundMeasurer]:
     """One store handle per server process (the Store serialises its connection with a lock), and
     one background thread measuring every stored test's takes, most recently changed project first."""
-    path = default_database_path()
-    path.parent.mkdir(parents=True, exist_ok=True)
-    handle = Store.open(path)
+    handle = open_store()         # FIELDTL_STORE_URL's team server, else the SQLite store in the data folder
     handle.clean_files()          # orphan audio and stale .incoming-*/.part leftovers of earlier runs
     handle.measurements.forget_other_versions(analysis_version())
     if not handle.list_projects() and DEMO_SURVEY.is_file() and not os.environ.get("FIELDTL_NO_DEMO"):
@@ -61,6 +61,12 @@ def _load_later_modules(measurer: BackgroundMeasurer) -> None:
 
 
 def store() -> Store:
+    """The store the pages use: with a team server, the signed-in account's handle (its roles apply)."""
+    return login.account_store() if login.server_configured() else _opened()[0]
+
+
+def server_store() -> Store:
+    """The process's own store handle (a team server's: signs accounts in; no roles apply to it)."""
     return _opened()[0]
 
 

@@ -13,7 +13,7 @@ import streamlit as st
 from streamlit.runtime.scriptrunner import get_script_run_ctx
 
 from fieldtl.errors import InputError
-from fieldtl.ui import access, state
+from fieldtl.ui import access, login, state
 
 
 def _configured_code() -> str:
@@ -21,7 +21,10 @@ def _configured_code() -> str:
 
 
 def passed() -> bool:
-    """True when this session may see projects: no code is set (local use) or it was entered."""
+    """True when this session may see projects: no code is set (local use) or it was entered;
+    with a team server, when an account signed in (ui/login.py)."""
+    if login.server_configured():
+        return login.signed_in()
     return not _configured_code() or st.session_state.get(state.ACCESS_OK) is True
 
 
@@ -39,6 +42,9 @@ def draw() -> None:
     """The gate form alone, then stop the script run (nothing after it is drawn)."""
     code = _configured_code()
     st.title("fieldtl")
+    if login.server_configured():       # accounts replace the access code
+        login.draw(_client_keys())
+        st.stop()
     try:
         access.check_chosen_code(code)
     except InputError:

@@ -1,0 +1,67 @@
+"""The app on a team server (AppTest): accounts sign in instead of the access code, and each
+account sees only the projects it has a role on. Runs against the real PostgreSQL server that
+scripts/test starts (FIELDTL_TEST_PG_URL; see tests/test_store_backends.py)."""
+
+from pathlib import Path
+
+import pytest
+import streamlit as st
+from streamlit.testing.v1 import AppTest
+from test_store import AIRBORNE
+from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
+
+from fieldtl.store.location import open_store
+
+APP = str(Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "app.py")
+PASSWORD = "invented-password-1"
+
+
+@pytest.fixture
+def team_app(pg_url, tmp_path, monkeypatch):  # noqa: F811
+    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "data"))
+    monkeypatch.setenv("FIELDTL_STORE_URL", pg_url)
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    monkeypatch.setenv("FIELDTL_ACCESS_CODE", "k7m2-q9tx-4hvw")      # ignored: accounts replace it
+    with open_store(pg_url, audio_dir=tmp_path / "data" / "audio") as server:
+        for name in ("ann", "olga"):
+            server.create_account(name, PASSWORD)
+        ann = server.login("ann", PASSWORD)
+        ann.create_test(ann.create_project("Invented project of Ann").id, AIRBORNE)
+        st.cache_resource.clear()
+        st.cache_data.clear()
+        yield
+        st.cache_resource.clear()
+        st.cache_data.clear()
+
+
+def _signed_in(name, password):
+    at = AppTest.from_file(APP, default_timeout=180)
+    at.run()
+    assert not at.exception, [e.value for e in at.exception]
+    assert [t.label for t in at.text_input] == ["Account", "Password"]      # no access-code field
+    at.text_input[0].input(name)
+    at.text_input[1].input(password)
+    at.button[0].click().run()
+    assert not at.exception, [e.value for e in at.exception]
+    return at
+
+
+def _shown(at):
+    return " ".join([*(o for s in at.selectbox for o in s.options), *(b.label for b in at.button),
+                     *(m.value for m in at.markdown)])
+
+
+def test_an_account_sees_only_its_projects(team_app):
+    ann = _signed_in("ann", PASSWORD)
+    assert ann.title[0].value == "Projects"
+    assert "Invented project of Ann" in _shown(ann) and "Bedroom 4 to bedroom 7" in _shown(ann)
+    olga = _signed_in("olga", PASSWORD)
+    assert olga.title[0].value == "Projects"
+    assert "Invented project of Ann" not in _shown(olga) and "Bedroom 4" not in _shown(olga)
+
+
+def test_a_wrong_password_opens_nothing(team_app):
+    at = _signed_in("ann", PASSWORD + "x")
+    assert "not recognised" in at.error[0].value
+    assert [t.label for t in at.text_input] == ["Account", "Password"]
+    assert not any(t.value == "Projects" for t in at.title)
