@@ -63,8 +63,9 @@ def timeline_figure(record: NoiseRecord, *, diary: Sequence[DiaryMatch] = ()) ->
         axes.plot([], [], "o", color=DIARY_COLOUR, label="diary entry (numbered)")
     axes.set_ylim(bottom=floor)
     axes.set_xlim(record.start, record.end)
-    axes.xaxis.set_major_formatter(mdates.DateFormatter("%H:%M", tz=zone))
-    axes.xaxis.set_major_locator(mdates.AutoDateLocator(tz=zone, minticks=3, maxticks=8))
+    locator = mdates.AutoDateLocator(tz=zone, minticks=3, maxticks=8)
+    axes.xaxis.set_major_locator(locator)
+    axes.xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator, tz=zone, show_offset=False))
     axes.tick_params(labelsize=FONT_SIZE)
     unit = "dB" if record.calibrated else "dB re full scale"
     axes.set_ylabel(f"level ({unit})", fontsize=FONT_SIZE)
