@@ -195,6 +195,8 @@ class BackgroundMeasurer:
 
     def pending(self, test_id: int) -> tuple[int, int] | None:
         with self._wake:
+            if not self._thread.is_alive():       # never leave a page waiting on a thread that is gone
+                return None
             return self._status.get(test_id)
 
     def stop(self) -> None:
