@@ -16,7 +16,7 @@ from fieldtl.store.survey_view import band_columns
 from fieldtl.survey import REQUIRED_ROLES
 from fieldtl.ui import common
 
-MESSAGES = "fieldtl.take_messages"      # [(kind, text)] about the last take(s) stored; kept until the next
+MESSAGES = "fieldtl.take_messages"      # (test id, [(kind, text)]) about the last take(s); kept until the next
 REMOVED = "fieldtl.removed_takes"       # {take id: excluded before removal}; deleted when the page is left
 
 # Pasted columns: title, what it holds (the paste help and the pasted-levels checklist share these words).
@@ -33,20 +33,21 @@ COLUMNS: dict[str, tuple[str, str]] = {
 
 def say(kind: str, text: str) -> None:
     """Add a message about the take just handled (shown until the next take is stored)."""
-    st.session_state.setdefault(MESSAGES, []).append((kind, text))
+    st.session_state[MESSAGES][1].append((kind, text))
 
 
-def show_messages() -> None:
+def show_messages(test_id: int) -> None:
     # Always one container, however many messages: the widgets below keep their place in the page,
     # so the recorder's frame is not drawn anew (and does not lose its state) when a message appears.
     with st.container():
-        for kind, text in st.session_state.get(MESSAGES, []):
+        shown_for, messages = st.session_state.get(MESSAGES, (None, []))
+        for kind, text in messages if shown_for == test_id else ():
             {"success": st.success, "warning": st.warning, "error": st.error}.get(kind, st.info)(text)
 
 
-def new_batch() -> None:
-    """A new take arrived: the messages about the previous one go."""
-    st.session_state[MESSAGES] = []
+def new_batch(test_id: int) -> None:
+    """A new take arrived for this test: the messages about the previous one go."""
+    st.session_state[MESSAGES] = (test_id, [])
 
 
 def removed() -> dict[int, bool]:

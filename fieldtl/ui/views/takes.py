@@ -51,7 +51,7 @@ with common.fenced():
 
     # --- adding a take -------------------------------------------------------------------------------------
     st.subheader("Add a take")
-    takelist.show_messages()
+    takelist.show_messages(test.id)
     roles = take_roles(setup.test_type)
     role = st.selectbox("What is this take", roles, format_func=common.ROLE_NAMES.get)
     speaker = 1
@@ -97,7 +97,7 @@ with common.fenced():
                                                                  else f", position {speaker}"))
             if recorded is not None and recorded.take_id not in state.remembered(state.STORED_RECORDINGS):
                 state.remembered(state.STORED_RECORDINGS).add(recorded.take_id)
-                takelist.new_batch()
+                takelist.new_batch(test.id)
                 _store_take(recorded.wav_bytes, f"recorded-{recorded.take_id[:8]}.wav", source="recorder",
                             recorder_settings={**recorded.settings, "warnings": list(recorded.warnings),
                                                "device_label": recorded.device_label})
@@ -110,7 +110,7 @@ with common.fenced():
                                        type=["wav", "flac"], accept_multiple_files=True, key="take-upload")
             fresh = [u for u in uploads or [] if u.file_id not in state.remembered(state.STORED_UPLOADS)]
             if fresh:
-                takelist.new_batch()
+                takelist.new_batch(test.id)
                 for upload in fresh:
                     state.remembered(state.STORED_UPLOADS).add(upload.file_id)
                     _store_take(upload.getvalue(), upload.name)
