@@ -271,3 +271,9 @@ def _walk(node):
     for child in getattr(node, "children", {}).values():
         yield child
         yield from _walk(child)
+
+
+def test_a_fresh_visit_shows_the_last_test_used_on_projects(data_dir, demo_address):
+    fresh = AppTest.from_file(APP, default_timeout=180).run()
+    assert fresh.title[0].value == "Projects"
+    assert "Open test: INVENTED DEMO" in fresh.info[0].value.replace("\\", "")

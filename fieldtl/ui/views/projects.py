@@ -22,6 +22,14 @@ with common.fenced():
         project = store.get_project(chosen)
         st.caption(" · ".join(common.md(x) for x in (project.client, project.address, project.engineer) if x))
         tests = store.list_tests(project.id)
+        open_test = next((t for t in tests if t.id == state.test_id()), None)
+        if open_test is not None:            # a reload, a shared link or the last test used
+            st.info(f"Open test: {common.md(open_test.setup.title)}")
+            left, right = st.columns(2)
+            with left:
+                st.page_link("views/takes.py", label="Continue with its takes", icon="🎙️")
+            with right:
+                st.page_link("views/results.py", label="See its results", icon="📊")
         st.subheader("Tests")
         if not tests:
             st.write("No tests yet: set one up.")
