@@ -36,7 +36,7 @@ def draw(store: Store, test: TestRecord, takes: Sequence[TakeRecord], titles: Ma
     with st.spinner("Reading the takes…"):
         measured = cached.measured_takes(test.id)      # the store's calibration rule, each take measured once
     if measured.calibration_problem:
-        st.error(common.md(renamed_text(measured.calibration_problem, names)))
+        st.error(common.md(common.plain_roles(renamed_text(measured.calibration_problem, names))))
     offset_db = measured.offset_db
     calibrated = measured.calibration is not None
     summaries: dict[int, object] = {take_id: FieldTLError(o.problem) if o.summary is None else (o.summary, o.findings)

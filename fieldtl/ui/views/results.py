@@ -5,13 +5,12 @@ import streamlit as st
 
 from fieldtl.naming import grouped_by_take
 from fieldtl.report.export import band_columns
-from fieldtl.ui import cached, chart, common, gate
+from fieldtl.ui import chart, common, gate
 from fieldtl.report.client import compared_value
 from fieldtl.ui.verdict_text import finding_line, site_list
 
 gate.require_access()
 with common.fenced():
-    store = cached.store()
     project, test = common.require_test()
     st.title("Results")
     common.heading(project, test)
