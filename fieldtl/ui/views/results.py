@@ -4,9 +4,9 @@ import pandas as pd
 import streamlit as st
 
 from fieldtl.naming import grouped_by_take
+from fieldtl.report.client import compared_value
 from fieldtl.report.export import band_columns
 from fieldtl.ui import chart, common, gate
-from fieldtl.report.client import compared_value
 from fieldtl.ui.verdict_text import finding_line, site_list
 
 gate.require_access()
