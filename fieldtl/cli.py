@@ -89,6 +89,8 @@ def _parser() -> argparse.ArgumentParser:
                         help="verdict rule: guarded by the expanded uncertainty (default) or shared risk")
     assess.add_argument("--speaker-rule", choices=("energy", "arithmetic", "simultaneous"), default="energy",
                         help="how loudspeaker positions are combined (default energy)")
+    assess.add_argument("--fresh", action="store_true", help="measure every recording again instead of reading "
+                        "the measurements kept in your fieldtl store (as FIELDTL_NO_CACHE=1 does)")
     assess.set_defaults(run=_run_assess)
 
     signal_cmd = sub.add_parser("signal", help="write a test signal for the loudspeaker (pink, white, sweep)")
@@ -239,17 +241,18 @@ def _run_assess(args: argparse.Namespace) -> int:
     check_output(args.plot, "--plot", suffixes=plot_suffixes() if args.plot else ())
     survey = load_survey(args.survey)
     return _assess_and_report(survey, json_path=args.json, csv_path=args.csv, plot_path=args.plot,
-                              decision=args.decision.replace("-", "_"), speaker_rule=args.speaker_rule)
+                              decision=args.decision.replace("-", "_"), speaker_rule=args.speaker_rule,
+                              fresh=args.fresh)
 
 
 def _assess_and_report(survey: Any, *, json_path: Path | None, csv_path: Path | None, plot_path: Path | None,
-                       decision: str = "guarded", speaker_rule: str = "energy") -> int:
+                       decision: str = "guarded", speaker_rule: str = "energy", fresh: bool = False) -> int:
     from fieldtl.assess import AssessOptions
     from fieldtl.report.export import assessment_to_csv, assessment_to_json, assessment_to_text
     from fieldtl.testrun import assess_survey, user_cache
 
     # The app's path: takes measured before (same audio, same settings) are read from the user's store.
-    with _progress_bar(survey.source_name, math.inf) as progress, user_cache() as cache:
+    with _progress_bar(survey.source_name, math.inf) as progress, user_cache(fresh=fresh) as cache:
         assessment = assess_survey(survey, cache=cache, progress=progress,
                                    options=AssessOptions(decision_rule=decision, source_combination=speaker_rule))
     print(assessment_to_text(assessment))

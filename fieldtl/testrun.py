@@ -57,13 +57,13 @@ def store_cache(store: Store, takes: tuple[TakeRecord, ...] = ()) -> Measurement
 
 
 @contextmanager
-def user_cache() -> Iterator[MeasurementCache | None]:
+def user_cache(*, fresh: bool = False) -> Iterator[MeasurementCache | None]:
     """The measurement cache of the user's own store (the app's), for ``fieldtl assess``.
 
-    None when FIELDTL_NO_CACHE is set or the store cannot be opened (read-only folder, made by a
-    newer fieldtl): the takes are then measured afresh, with the same results.
+    None when ``fresh``, when FIELDTL_NO_CACHE is set or when the store cannot be opened (read-only
+    folder, made by a newer fieldtl): the takes are then measured afresh, with the same results.
     """
-    if os.environ.get("FIELDTL_NO_CACHE"):
+    if fresh or os.environ.get("FIELDTL_NO_CACHE"):
         yield None
         return
     from fieldtl.store import Store, default_database_path

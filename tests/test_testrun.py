@@ -139,6 +139,8 @@ def test_a_second_fieldtl_assess_reads_kept_measurements_and_loads_no_analysis(t
     assert second_status == f"0 {[]}" and second == first                         # read back, same report
     fresh_status, fresh = run_cli("assess", str(DEMO / "survey.toml"), env=dict(env, FIELDTL_NO_CACHE="1"))
     assert "scipy.signal" in fresh_status and fresh == first
+    flag_status, flagged = run_cli("assess", str(DEMO / "survey.toml"), "--fresh", env=env)
+    assert "scipy.signal" in flag_status and flagged == first
 
 
 # --- what invalidates a kept measurement -------------------------------------------------------------
