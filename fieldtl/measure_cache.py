@@ -108,6 +108,8 @@ class MeasurementCache:
              progress: Progress | None = None) -> tuple[TakeSummary, tuple[Finding, ...]]:
         """The take's measurement (kept, or measured now and kept), labelled with its role and position."""
         sha256 = self.content_hash(spec.file)
+        if sha256 is None:          # unreadable: measuring says why, in one line naming the file
+            return measure_take(spec, level_offset_db=level_offset_db, progress=progress)
         settings = take_settings(spec, sha256=sha256, level_offset_db=level_offset_db, version=self.version)
         key = settings_key(settings) if _storable(settings) else None
         kept = self._rows.get(key) if key else None
@@ -126,6 +128,8 @@ class MeasurementCache:
         from fieldtl.audio.calibration import Calibration
 
         sha256 = self.content_hash(file)
+        if sha256 is None:
+            return calibrate_file(file, channel, reference_db)
         settings = {"analysis_version": self.version, "sha256": sha256, "name": file.name, "channel": channel,
                     "kind": "calibration", "reference_db": float(reference_db)}
         key = settings_key(settings) if _storable(settings) else None
@@ -147,9 +151,13 @@ class MeasurementCache:
         except StoreError:
             pass
 
-    def content_hash(self, file: Path) -> str:
+    def content_hash(self, file: Path) -> str | None:
+        """SHA-256 of the file's bytes, or None if it cannot be read."""
         if file not in self._hashes:
-            self._hashes[file] = _file_sha256(file)
+            try:
+                self._hashes[file] = _file_sha256(file)
+            except OSError:
+                return None
         return self._hashes[file]
 
 
@@ -275,10 +283,7 @@ def _file_sha256(file: Path) -> str:
     """SHA-256 of the file's bytes, remembered while its size and modification time stay the same."""
     from fieldtl.audio.ingest import file_sha256
 
-    try:
-        status = os.stat(file)
-    except OSError:
-        return file_sha256(file)        # raises the one-line error of a missing file, as measuring would
+    status = os.stat(file)
     stamp = (str(Path(file).resolve()), status.st_size, status.st_mtime_ns)
     if stamp not in _FILE_HASHES:
         _FILE_HASHES[stamp] = file_sha256(file)

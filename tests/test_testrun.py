@@ -297,6 +297,18 @@ def test_a_damaged_row_is_measured_again(three_takes, monkeypatch):
     assert counting.files == [one.file_name]
 
 
+def test_a_file_that_cannot_be_read_fails_as_measuring_it_would(tmp_path):
+    from fieldtl.survey import TakeSpec
+
+    folder = tmp_path / "take.wav"
+    folder.mkdir()
+    spec = TakeSpec(file=folder, role="receiving", speaker=1)
+    with Store.open(":memory:") as store:
+        with pytest.raises(InputError, match=r"^take.wav: is a folder, not an audio file$"):
+            store_cache(store).take(spec, level_offset_db=0.0)
+        assert store.measurements.keys() == frozenset()
+
+
 def test_the_key_is_the_sha256_of_the_settings():
     settings = {"sha256": "0" * 64, "channel": 0, "level_offset_db": 0.1}
     canonical = '{"channel":0,"level_offset_db":0.1,"sha256":"' + "0" * 64 + '"}'
