@@ -166,6 +166,15 @@ def test_phone_takes_listed_at_once_duplicates_refused_removal_and_results_reloa
             page.get_by_text("Removed hum.wav").wait_for(timeout=120_000)
             page.get_by_text(re.compile(r"Takes so far \(31 used")).wait_for(timeout=120_000)
             assert _contrast(page, "[data-testid='stCaptionContainer'] p") >= 4.5       # WCAG 2.x AA text
+            # removing the calibration check at the end turns the checklist back; undo restores it
+            page.get_by_text("Checklist: 8 of 8 done").wait_for(timeout=60_000)
+            end_tone = page.get_by_text("cal_after.flac (calibrator tone at the end)").locator(
+                "xpath=ancestor::div[.//details][1]")                  # the take's bordered box
+            end_tone.get_by_text("Correct, change channel or remove").click()
+            end_tone.get_by_role("button", name="Remove this take").click()
+            page.get_by_text("Checklist: 7 of 8 done").wait_for(timeout=120_000)
+            page.get_by_role("button", name="Undo").last.click()             # hum.wav stays removed
+            page.get_by_text("Checklist: 8 of 8 done").wait_for(timeout=120_000)
 
             page.get_by_text("See the results").first.click()
             page.get_by_text("Before you leave the site").wait_for(timeout=180_000)
@@ -175,6 +184,12 @@ def test_phone_takes_listed_at_once_duplicates_refused_removal_and_results_reloa
             page.get_by_text(re.compile(r"PASS against DnT,w \+ Ctr")).wait_for(timeout=180_000)
             assert page.url == address and page.get_by_role("heading", name="Results", exact=True).count() == 1
             assert page.get_by_text(re.compile(r"ir_s2_p3\.flac \(decay in the receiving room")).count() >= 1
+            verdict = page.get_by_text(re.compile(r"PASS against DnT,w \+ Ctr")).inner_text()
+            compared = int(re.search(r"= (\d+) - (\d+) = (\d+) dB", verdict).group(3))
+            table = page.locator("[data-testid='stTable']").first.inner_text()
+            dnt_w = int(re.search(r"DnT,w\s+(\d+)", table).group(1))
+            ctr = int(re.search(r"DnT,w\s+\d+\s+[-+]\d+\s+([-+]\d+)", table).group(1))
+            assert compared == dnt_w + ctr == 50      # the invented truth (sample_audio/expected.json)
             assert not re.search(r"[0-9a-f]{64}", page.locator("body").inner_text())
             assert page.evaluate("document.documentElement.scrollWidth") <= PHONE["width"]
         finally:
