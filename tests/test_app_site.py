@@ -185,6 +185,7 @@ def test_a_pasted_levels_test_has_its_own_checklist_and_counts_as_calibrated(dat
     assert [t.label for t in at.tabs] == ["Paste levels"]            # no recording is asked for
     assert "present (1 column)**: `L2`" in _texts(at)
     assert "Record" not in [t.label for t in at.tabs] and "receiving-room microphone positions" not in _texts(at)
+    assert not at.selectbox and "Pasted band levels" in [h.value for h in at.subheader]   # no recording picker
     results = _open("views/results.py", project_id, test_id)
     assert "no calibration" not in _texts(results)
     assert results.table[0].value.loc["DnT,w", "dB"]

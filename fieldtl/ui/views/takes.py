@@ -50,23 +50,24 @@ with common.fenced():
     st.page_link("views/results.py", label="See the results", icon="📊")
 
     # --- adding a take -------------------------------------------------------------------------------------
-    st.subheader("Add a take")
+    st.subheader("Pasted band levels" if pasted else "Add a take")
     takelist.show_messages(test.id)
-    roles = take_roles(setup.test_type)
-    role = st.selectbox("What is this take", roles, format_func=common.ROLE_NAMES.get)
-    speaker = 1
-    if role not in NO_SOURCE_POSITION:
-        speaker = int(st.number_input(common.position_label(setup.test_type), min_value=1, max_value=20, value=1,
-                                      step=1))
-    method = None
+    role, speaker, method, channel = "source", 1, None, 0
     sweep: dict[str, float] = {}
-    if role == "decay":
-        method = st.radio("How the decay was made", list(common.METHOD_NAMES), format_func=common.METHOD_NAMES.get)
-        if method == "sweep":
-            sweep = {"sweep_start_hz": st.number_input("Sweep start, Hz", value=40.0),
-                     "sweep_stop_hz": st.number_input("Sweep stop, Hz", value=12_500.0),
-                     "sweep_length_s": st.number_input("Sweep length, s", value=10.0)}
-    channel = int(st.number_input("Channel of the file to use", min_value=1, max_value=16, value=1)) - 1
+    if not pasted:                           # what the next recording is (a pasted test needs none)
+        roles = take_roles(setup.test_type)
+        role = st.selectbox("What is this take", roles, format_func=common.ROLE_NAMES.get)
+        if role not in NO_SOURCE_POSITION:
+            speaker = int(st.number_input(common.position_label(setup.test_type), min_value=1, max_value=20,
+                                          value=1, step=1))
+        if role == "decay":
+            method = st.radio("How the decay was made", list(common.METHOD_NAMES),
+                              format_func=common.METHOD_NAMES.get)
+            if method == "sweep":
+                sweep = {"sweep_start_hz": st.number_input("Sweep start, Hz", value=40.0),
+                         "sweep_stop_hz": st.number_input("Sweep stop, Hz", value=12_500.0),
+                         "sweep_length_s": st.number_input("Sweep length, s", value=10.0)}
+        channel = int(st.number_input("Channel of the file to use", min_value=1, max_value=16, value=1)) - 1
 
     def _store_take(data: bytes, name: str, *, source: str = "upload", recorder_settings: dict | None = None) -> None:
         existing = takelist.duplicate_of(data, takes)
