@@ -405,10 +405,15 @@ def _run_store_clean(args: argparse.Namespace) -> int:
     data_dir = (args.data_dir or default_data_dir()).expanduser()
     if not (data_dir / DATABASE_NAME).is_file():
         raise InputError(f"{file_label(data_dir)}: no fieldtl store in this folder ({DATABASE_NAME} not found)")
+    from fieldtl.measure_cache import analysis_version
+
     with Store.open(data_dir / DATABASE_NAME) as store:
         removed = store.clean_files()
+        forgotten = store.measurements.forget_other_versions(analysis_version())
     for path in removed:
         print(f"removed {path.parent.name}/{path.name}")
+    if forgotten:
+        print(f"{forgotten} kept measurement{'' if forgotten == 1 else 's'} of an earlier analysis version removed")
     print(f"{len(removed)} file{'' if len(removed) == 1 else 's'} removed from the store in {data_dir}")
     return 0
 

@@ -212,6 +212,17 @@ def test_a_new_analysis_version_remeasures(three_takes, monkeypatch):
         measure_cache.analysis_version.cache_clear()
 
 
+def test_store_clean_removes_measurements_of_another_analysis_version_only(tmp_path, capsys):
+    with Store.open(tmp_path / "fieldtl.sqlite3") as store:
+        rows = store.measurements
+        for key, version in (("a" * 64, "0-old"), ("b" * 64, "0-old"), ("c" * 64, measure_cache.analysis_version())):
+            rows.put(key, sha256="d" * 64, analysis_version=version, settings_json="{}", measurement_json="{}")
+    assert main(["store", "clean", "--data-dir", str(tmp_path)]) == 0
+    assert capsys.readouterr().out.splitlines()[0] == "2 kept measurements of an earlier analysis version removed"
+    with Store.open(tmp_path / "fieldtl.sqlite3") as store:
+        assert store.measurements.keys() == {"c" * 64}
+
+
 def test_two_included_calibrator_takes_follow_the_stores_rule(three_takes):
     store, test_id, two, one, decay = three_takes
     tone = (DEMO / "cal_before.flac").read_bytes()
