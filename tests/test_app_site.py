@@ -278,3 +278,9 @@ def test_a_fresh_visit_shows_the_last_test_used_on_projects(data_dir, demo_addre
     fresh = AppTest.from_file(APP, default_timeout=180).run()
     assert fresh.title[0].value == "Projects"
     assert "Open test: INVENTED DEMO" in fresh.info[0].value.replace("\\", "")
+
+
+def test_the_set_up_page_shows_no_internal_notes(data_dir, empty_test):
+    at = _open("views/setup.py", *empty_test)
+    shown = _texts(at).lower()
+    assert "dnt,w + ctr >= 45" in shown and "from memory" not in shown and "facts sheet" not in shown
