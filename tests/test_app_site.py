@@ -266,6 +266,16 @@ def test_results_chart_text_is_at_least_11_px_on_a_phone(data_dir, demo_address)
         assert config["axis"][part] >= 11
     assert config["title"]["fontSize"] >= 11 and config["legend"]["labelFontSize"] >= 11
     assert min(_font_sizes(spec)) >= 11
+    for colour in (config["axis"]["labelColor"], config["axis"]["titleColor"], config["title"]["color"]):
+        assert _contrast_on_white(colour) >= 4.5          # WCAG 2.x AA for text
+
+
+def _contrast_on_white(hex_colour: str) -> float:
+    """WCAG 2.x contrast ratio of an sRGB colour "#rrggbb" on white (relative luminance formula)."""
+    channels = [int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
+    linear = [c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4 for c in channels]
+    luminance = 0.2126 * linear[0] + 0.7152 * linear[1] + 0.0722 * linear[2]
+    return 1.05 / (luminance + 0.05)
 
 
 def _walk(node):

@@ -9,6 +9,7 @@ from fieldtl.assess import Assessment
 from fieldtl.construction import Comparison
 
 FONT_PX = 12          # at least 11 px on a 390 px phone: Vega-Lite draws text at this size, unscaled
+TEXT_COLOUR = "#333333"          # 12.6:1 on white; Vega's default grey axis text is lighter
 MEASURED_COLOUR = "#1b4f72"
 REFERENCE_COLOUR = "#595959"     # 7:1 on white
 DEVIATION_COLOUR = "#e67e22"
@@ -39,8 +40,9 @@ def rating_chart(assessment: Assessment) -> alt.Chart | None:
         x=x, y="measured:Q", y2="reference:Q")
     chart = (below + shifted + measured).properties(height=300, title=f"{rating.descriptor} = "
                                                                      f"{rating.single_number_db} dB")
-    return chart.configure_axis(labelFontSize=FONT_PX, titleFontSize=FONT_PX).configure_title(
-        fontSize=FONT_PX, limit=360).configure_legend(labelFontSize=FONT_PX)
+    return chart.configure_axis(labelFontSize=FONT_PX, titleFontSize=FONT_PX, labelColor=TEXT_COLOUR,
+                                titleColor=TEXT_COLOUR).configure_title(
+        fontSize=FONT_PX, limit=360, color=TEXT_COLOUR).configure_legend(labelFontSize=FONT_PX, labelColor=TEXT_COLOUR)
 
 
 def construction_chart(check: Comparison) -> alt.Chart:
@@ -56,5 +58,5 @@ def construction_chart(check: Comparison) -> alt.Chart:
                         legend=alt.Legend(orient="bottom", title=None)),
         strokeDash=alt.StrokeDash("curve:N", legend=None),
         tooltip=["band", "curve", alt.Tooltip("value:Q", format=".1f")]).properties(height=300)
-    return chart.configure_axis(labelFontSize=FONT_PX, titleFontSize=FONT_PX).configure_legend(
-        labelFontSize=FONT_PX)
+    return chart.configure_axis(labelFontSize=FONT_PX, titleFontSize=FONT_PX, labelColor=TEXT_COLOUR,
+                                titleColor=TEXT_COLOUR).configure_legend(labelFontSize=FONT_PX, labelColor=TEXT_COLOUR)
