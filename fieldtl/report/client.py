@@ -17,8 +17,8 @@ UNCONFIRMED_MARK = "†"
 EXPLANATION = f"{UNCONFIRMED_MARK} Where this mark stands, the value used is {TOOL_DEFAULT}."
 
 _FROM_MEMORY = re.compile(r"\s*[;,]?\s*(?:formula\s+|values?\s+)?from memory", re.IGNORECASE)
-_FACTS_SHEET = re.compile(r"\s*[;,]?\s*(?:the project's\s+)?facts sheet(?:\s+[0-9][0-9.]*(?:\s*(?:,|and)\s*[0-9][0-9.]*)*)?"
-                          r"(?:\s+table)?", re.IGNORECASE)
+_FACTS_SHEET = re.compile(r"\s*[;,]?\s*(?:the project's\s+)?facts sheet"
+                          r"(?:\s+[0-9][0-9.]*(?:\s*(?:,|and)\s*[0-9][0-9.]*)*)?(?:\s+table)?", re.IGNORECASE)
 _VERIFIED = re.compile(r"\s*\(verified\)", re.IGNORECASE)
 
 

@@ -47,8 +47,8 @@ def rating_chart(assessment: Assessment) -> alt.Chart | None:
 
 def construction_chart(check: Comparison) -> alt.Chart:
     """Predicted R of the declared build-up and the measured R' per band, text at FONT_PX."""
-    frame = pd.DataFrame([{"band": f"{f:g}", "value": v, "curve": name}
-                          for name, spectrum in (("R predicted", check.predicted_db), ("R' measured", check.measured_db))
+    curves = (("R predicted", check.predicted_db), ("R' measured", check.measured_db))
+    frame = pd.DataFrame([{"band": f"{f:g}", "value": v, "curve": name} for name, spectrum in curves
                           for f, v in zip(spectrum.nominal_hz, spectrum.values) if v is not None])
     order = [f"{f:g}" for f in check.gap_db.nominal_hz]
     chart = alt.Chart(frame).mark_line(point=True).encode(
