@@ -147,7 +147,7 @@ def test_findings_name_the_files_and_the_verdict_is_the_tables_number(data_dir, 
     assert not STORAGE_NAME.search(shown)
     # The demo's one weak take (sample_audio/README.md) leads the list of what to redo, by its name.
     first_to_redo = at.markdown[1].value.replace("\\", "")
-    assert "**ir_s2_p3.flac (decay in the receiving room, loudspeaker 2, microphone 3)**" in first_to_redo
+    assert "**Redo ir_s2_p3.flac (decay in the receiving room, loudspeaker 2, microphone 3)**" in first_to_redo
     table = at.table[0].value
     dnt_w, ctr = int(table.loc["DnT,w", "dB"]), int(table.loc["DnT,w", "Ctr"])
     verdict = at.success[0].value.replace("\\", "")

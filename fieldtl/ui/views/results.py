@@ -7,7 +7,7 @@ from fieldtl.naming import grouped_by_take
 from fieldtl.report.client import compared_value
 from fieldtl.report.export import band_columns
 from fieldtl.ui import chart, common, gate
-from fieldtl.ui.verdict_text import finding_line, site_list
+from fieldtl.ui.verdict_text import finding_line, site_line, site_list
 
 gate.require_access()
 with common.fenced():
@@ -27,7 +27,7 @@ with common.fenced():
     st.subheader("Before you leave the site")
     if to_redo:
         for group in to_redo:
-            st.markdown(f"- {finding_line(group)}")
+            st.markdown(f"- {site_line(group)}")
     else:
         st.success("Done: nothing to re-record. The checks found no take to redo.")
 
