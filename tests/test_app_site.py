@@ -295,3 +295,23 @@ def test_the_set_up_page_shows_no_internal_notes(data_dir, empty_test):
     at = _open("views/setup.py", *empty_test)
     shown = _texts(at).lower()
     assert "dnt,w + ctr >= 45" in shown and "from memory" not in shown and "facts sheet" not in shown
+
+
+def test_an_impact_test_from_pasted_levels_reaches_a_verdict_with_the_tables_number(data_dir, monkeypatch):
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    data_dir.mkdir(parents=True)
+    bands = (100, 125, 160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250, 1600, 2000, 2500, 3150)
+    rows = "\n".join(f"{f},{60.0},{60.5},{59.5},{60.0},{20.0},0.5" for f in bands)
+    with Store.open(data_dir / "fieldtl.sqlite3") as store:
+        project = store.create_project("Invented impact project")
+        test = store.create_test(project.id, TestSetup(title="Invented floor", test_type="impact",
+                                                       receiving_volume_m3=50.0, requirement="L'nT,w <= 62"))
+        store.set_band_levels(test.id, "frequency_hz,Li_s1,Li_s2,Li_s3,Li_s4,B,T\n" + rows)
+    at = _open("views/results.py", project.id, test.id)
+    verdict = (at.success or at.error or at.warning)[0].value.replace("\\", "")
+    table = at.table[0].value
+    # T = 0.5 s = T0, so L'nT = Li in every band (ISO 16283-2 standardisation), and the compared
+    # value is the whole-dB L'nT,w the table shows
+    shown_db = int(table.loc["L'nT,w", "dB"])
+    assert f"compared value L'nT,w = {shown_db} dB" in verdict
+    assert "no calibration" not in _texts(at)
