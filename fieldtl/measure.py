@@ -25,13 +25,13 @@ from fieldtl.survey import BandColumn, Survey, TakeSpec
 
 if TYPE_CHECKING:
     from fieldtl.analysis.decay import DecayAnalysis
-    from fieldtl.analysis.levels import LevelAnalysis
+    from fieldtl.analysis.levels import StationaryLevels
     from fieldtl.audio.calibration import Calibration
     from fieldtl.audio.signals import SweepSpec
 
 # Bump when a change to the analysis changes what any take measures (band levels, decays, their
 # findings): every stored measurement of another version is then measured again (fieldtl.testrun).
-ANALYSIS_VERSION = 1
+ANALYSIS_VERSION = 2     # 2: level takes' band Leq by the spectral route (within 0.1 dB of 1's)
 FIELD_RANGE_HZ = (50.0, 5000.0)                 # ISO 16283-1/-2 bands with the optional extensions
 Progress = Callable[[str, float], None]         # (take name, fraction of that take done)
 TakeMeasurer = Callable[..., tuple[TakeSummary, tuple[Finding, ...]]]   # measure_take's signature
@@ -86,7 +86,7 @@ def measure_survey(survey: Survey, *, progress: Progress | None = None,
 def measure_take(spec: TakeSpec, *, level_offset_db: float,
                  progress: Progress | None = None) -> tuple[TakeSummary, tuple[Finding, ...]]:
     """Band levels (level roles) or reverberation times (decays) of one recording."""
-    from fieldtl.analysis.levels import analyse_levels
+    from fieldtl.analysis.levels import stationary_levels
     from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording, read_samples
 
     recording = open_recording(spec.file, channel=spec.channel)
@@ -101,10 +101,12 @@ def measure_take(spec: TakeSpec, *, level_offset_db: float,
                            octave_63_reverberation_time_s=octave_63_t20_s(
                                samples, sample_rate_hz=recording.sample_rate_hz, spec=spec, source_name=name))
         return take, facts.findings + analysis.all_findings()
-    levels = analyse_levels(stats.watch(iter_blocks(recording)), sample_rate_hz=recording.sample_rate_hz,
-                            level_offset_db=level_offset_db, band_range_hz=FIELD_RANGE_HZ,
-                            total_frames=recording.frames, source_name=name,
-                            progress=None if progress is None else (lambda done: progress(name, done)))
+    # Level takes are stationary (ISO 16283: steady source, receiving, background and impact levels):
+    # band Leq by the spectral route, the A-weighted 1 s levels for the stationarity checks.
+    levels = stationary_levels(stats.watch(iter_blocks(recording)), sample_rate_hz=recording.sample_rate_hz,
+                               level_offset_db=level_offset_db, band_range_hz=FIELD_RANGE_HZ,
+                               total_frames=recording.frames, source_name=name,
+                               progress=None if progress is None else (lambda done: progress(name, done)))
     facts = stats.facts()
     history_std_db, event_db = _history_statistics(levels)
     take = TakeSummary(label=name, role=spec.role, speaker=spec.speaker, duration_s=facts.duration_s,
@@ -168,9 +170,9 @@ def calibrate_file(file: Path, channel: int, reference_db: float) -> Calibration
                                  source_name=recording.name, reference_db=reference_db)
 
 
-def _history_statistics(levels: LevelAnalysis) -> tuple[float | None, float | None]:
+def _history_statistics(levels: StationaryLevels) -> tuple[float | None, float | None]:
     """Scatter of whole 1 s A-weighted levels, and the loudest one above the median."""
-    laeq_db = levels.history.laeq_db[1:-1]          # first: settling filters; last: a partial second
+    laeq_db = levels.laeq_history_db[1:-1]          # first: settling filters; last: a partial second
     laeq_db = laeq_db[np.isfinite(laeq_db)]
     if laeq_db.size < 3:
         return None, None

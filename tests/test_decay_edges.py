@@ -179,3 +179,18 @@ def test_bandwidth_times_reverberation_time(kind, limit, factor, fires):
     assert band.bt_limit == limit
     assert band.bt_product == pytest.approx(factor * limit, rel=1e-6)
     assert ("bt_too_small" in _codes(band)) is fires
+
+
+def test_least_squares_line_matches_an_exact_line_and_scipy_linregress():
+    from scipy.stats import linregress
+
+    from fieldtl.analysis.lundeby import least_squares_line
+
+    time_s = np.arange(200) * STEP_S
+    slope, intercept, r = least_squares_line(time_s, -5.0 - 120.0 * time_s)    # T = 60/120 = 0.5 s exactly
+    assert (slope, intercept, r) == pytest.approx((-120.0, -5.0, -1.0), abs=1e-9)
+    level_db = -5.0 - 120.0 * time_s + np.random.default_rng(3).normal(0.0, 0.5, time_s.size)
+    reference = linregress(time_s, level_db)
+    assert least_squares_line(time_s, level_db) == pytest.approx(
+        (reference.slope, reference.intercept, reference.rvalue), rel=1e-9)
+    assert math.isnan(least_squares_line(time_s, np.full(time_s.size, -5.0))[2])   # flat: r undefined

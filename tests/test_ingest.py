@@ -193,3 +193,14 @@ def test_blocks_of_many_channels_stay_within_the_block_byte_limit(tmp_path, monk
     blocks = list(iter_blocks(open_recording(path, channel=5)))
     assert max(b.size for b in blocks) == 1000 and sum(b.size for b in blocks) == 10_000
     np.testing.assert_array_equal(np.concatenate(blocks), samples[:, 5].astype(np.float32))
+
+
+def test_a_run_continues_across_an_empty_block():
+    # 3 full-scale samples split 2 + 1 around an empty block are one clipped run (CLIP_RUN_SAMPLES = 3),
+    # and 2 alone are not a run
+    stats = SampleStats(sample_rate_hz=48_000, source_name="clip.wav")
+    stats.update(np.array([0.1, 1.0, 1.0]))
+    stats.update(np.empty(0))
+    stats.update(np.array([1.0, 0.1, -1.0, -1.0, 0.1]))
+    facts = stats.facts()
+    assert (facts.clip_runs, facts.clipped_samples) == (1, 3)

@@ -292,3 +292,38 @@ def test_silence_gives_no_band_value_rather_than_a_number():
     result = analyse_levels([np.zeros(int(RATE_HZ))], sample_rate_hz=RATE_HZ)
     assert set(result.band_leq.values) == {None}
     assert result.laeq_db == -math.inf
+
+
+def test_stationary_levels_read_a_tone_step_and_band_levels_of_a_sine():
+    # analytic: a 1 kHz sine of amplitude 0.1 doubling at 3 s, 6.5 s long. 1 s rows of LAeq
+    # (A is 0 dB at 1 kHz, IEC 61672-1) read 20 lg(a/√2) before the step and +6.02 dB after.
+    samples = tone(1000.0, 0.1, 6.5)
+    samples[int(3 * RATE_HZ):] *= 2
+    result = levels.stationary_levels([samples[:100_000], samples[100_000:]], sample_rate_hz=RATE_HZ,
+                                      level_offset_db=94.0, band_range_hz=(50.0, 5000.0))
+    expected_db = np.array([sine_level_db(0.1)] * 3 + [sine_level_db(0.2)] * 4) + 94.0
+    assert result.laeq_history_db == pytest.approx(expected_db, abs=0.02)
+    seconds = np.array([1 - levels.WEIGHTING_SETTLE_S, 1, 1, 1, 1, 1, 0.5])
+    overall_db = 10 * math.log10(np.sum(seconds * 10 ** (result.laeq_history_db / 10)) / seconds.sum())
+    assert result.laeq_db == pytest.approx(overall_db, abs=1e-9)
+    assert result.duration_s == pytest.approx(6.5)
+    with pytest.raises(ValueError):
+        result.laeq_history_db[0] = 0.0                      # read-only
+    # the same values as the spectral route of the full analysis, which also filters C and F/S
+    full = analyse_levels([samples], sample_rate_hz=RATE_HZ, level_offset_db=94.0, band_range_hz=(50.0, 5000.0),
+                          band_route="spectral")
+    assert result.band_leq.values == pytest.approx(full.band_leq.values, abs=1e-9)
+    assert result.laeq_history_db == pytest.approx(full.history.laeq_db, abs=1e-9)
+    # a steady sine (the route is for stationary takes) reads 20 lg(a/√2) in its band (0 dB at fm,
+    # IEC 61260-1) and nothing near it an octave away
+    steady = levels.stationary_levels([tone(exact_centre_hz(1000.0), 0.1, 6.5)], sample_rate_hz=RATE_HZ,
+                                      band_range_hz=(50.0, 5000.0))
+    assert steady.band_leq.at(1000.0) == pytest.approx(sine_level_db(0.1), abs=0.02)
+    assert steady.band_leq.at(500.0) < sine_level_db(0.1) - 40
+
+
+def test_stationary_levels_refuse_what_the_full_analysis_refuses():
+    with pytest.raises(InputError, match=r"^short\.wav: .* too short"):
+        levels.stationary_levels([tone(1000.0, 0.1, 0.3)], sample_rate_hz=RATE_HZ, source_name="short.wav")
+    with pytest.raises(InputError, match=r"^nan\.wav: non-finite sample"):
+        levels.stationary_levels([np.full(48_000, np.nan)], sample_rate_hz=RATE_HZ, source_name="nan.wav")

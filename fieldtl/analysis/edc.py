@@ -14,7 +14,7 @@ from typing import Literal
 
 import numpy as np
 
-from fieldtl.analysis.lundeby import estimate_noise_floor, smoothing_window_s
+from fieldtl.analysis.lundeby import estimate_noise_floor, least_squares_line, smoothing_window_s
 from fieldtl.bands import Fraction
 from fieldtl.errors import InputError
 
@@ -87,29 +87,30 @@ def fit_decay_line(time_s: np.ndarray, level_db: np.ndarray, *, top_db: float,
     if last - first < 2:
         return None
     t, y = time_s[first:last + 1], level_db[first:last + 1]
-    slope, intercept = np.polyfit(t, y, 1)
+    slope, _, r = least_squares_line(t, y)
     if not slope < 0.0:
         return None
-    r = np.corrcoef(t, y)[0, 1]
     return DecayLine(reverberation_time_s=float(-60.0 / slope), top_db=float(y[0]), bottom_db=float(y[-1]),
                      start_s=float(t[0]), stop_s=float(t[-1]),
                      nonlinearity_permille=float(1000.0 * (1.0 - r * r)))   # ISO 3382-2 Annex B (from memory)
 
 
-def schroeder_decay_db(energy: np.ndarray, *, tail_energy: float = 0.0) -> np.ndarray:
+def schroeder_decay_db(energy: np.ndarray, *, tail_energy: float = 0.0, step: int = 1) -> np.ndarray:
     """Backward-integrated energy plus ``tail_energy``, in dB re its first value (0 dB at t = 0).
 
     E(t) = Σ_{τ >= t} e(τ) + tail (Schroeder 1965; facts sheet 6.3). ``energy`` is the squared
     band signal, already truncated and noise-subtracted as wanted. Points where the integral is
-    not positive (after noise subtraction) end the curve. Does not find the start or the noise.
+    not positive (after noise subtraction) end the curve. Returns every ``step``-th point of the
+    curve (the same values, only fewer logarithms taken). Does not find the start or the noise.
     """
-    integral = np.cumsum(np.asarray(energy, dtype=float)[::-1])[::-1] + tail_energy
+    integral = np.cumsum(np.asarray(energy, dtype=float)[::-1])[::-1]
+    integral += tail_energy
     if integral.size == 0 or integral[0] <= 0.0:
         raise InputError("decay has no energy above the noise estimate")
     non_positive = np.flatnonzero(integral <= 0.0)
     if non_positive.size:
         integral = integral[: int(non_positive[0])]
-    return 10.0 * np.log10(integral / integral[0])
+    return 10.0 * np.log10(integral[::step] / integral[0])
 
 
 def impulse_start_index(impulse_response: np.ndarray) -> int | None:
@@ -154,12 +155,20 @@ def integrated_decay_curve(band_response: np.ndarray, *, nominal_hz: float, samp
     end = max(round(floor.crossing_time_s * sample_rate_hz), 1)
     # Tail beyond the crossing point: P · T_late / (6 ln 10), in sample sums (facts sheet 6.3 (a)).
     tail = floor.noise_power * floor.late_decay_time_s / (6.0 * math.log(10.0)) * sample_rate_hz
-    dynamic_range_db = 10.0 * math.log10((float(np.sum(energy[:end])) + tail) / tail)
-    kept = {"none": energy, "truncate": energy[:end], "subtract": energy[:end] - floor.noise_power}[noise_handling]
-    if float(np.sum(kept)) + (0.0 if noise_handling == "none" else tail) <= 0.0:
+    head_energy = float(np.sum(energy[:end]))
+    dynamic_range_db = 10.0 * math.log10((head_energy + tail) / tail)
+    tail_energy = 0.0 if noise_handling == "none" else tail
+    if noise_handling == "none":
+        kept, kept_energy = energy, float(np.sum(energy))
+    elif noise_handling == "truncate":
+        kept, kept_energy = energy[:end], head_energy
+    else:
+        kept = energy[:end] - floor.noise_power
+        kept_energy = float(np.sum(kept))
+    initial_energy = kept_energy + tail_energy
+    if initial_energy <= 0.0:
         return None    # nothing left above the noise estimate
-    level_db = schroeder_decay_db(kept, tail_energy=0.0 if noise_handling == "none" else tail)
     step = max(1, round(CURVE_STEP_S * sample_rate_hz))
-    initial_energy = float(np.sum(kept)) + (0.0 if noise_handling == "none" else tail)
-    return DecayCurve(nominal_hz, fraction, step / sample_rate_hz, tuple(level_db[::step].tolist()),
+    level_db = schroeder_decay_db(kept, tail_energy=tail_energy, step=step)
+    return DecayCurve(nominal_hz, fraction, step / sample_rate_hz, tuple(level_db.tolist()),
                       dynamic_range_db, "integrated_impulse_response", initial_energy)

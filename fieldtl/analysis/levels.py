@@ -12,6 +12,8 @@ Band Leq has two routes. "filtered" runs the multirate bank in the time domain a
 histories. "spectral" (stationary takes, where only Leq is needed) weights the recording's power
 spectrum by the same bank's squared response (:mod:`fieldtl.analysis.spectral`): about six times
 cheaper, no band histories. The weighted levels, their maxima and histories are always filtered.
+:func:`stationary_levels` is the spectral route with the A-weighted level and its history only
+(what a take of a sound insulation test needs; fieldtl.measure).
 """
 
 from __future__ import annotations
@@ -25,6 +27,7 @@ import numpy as np
 from scipy import signal
 
 from fieldtl.analysis.filterbank import BankStream, FilterBank, design_filter_bank, fraction_name
+from fieldtl.analysis.intervals import IntervalTable
 from fieldtl.analysis.spectral import SpectralBands
 from fieldtl.analysis.weighting import (FAST_TIME_CONSTANT_S, SLOW_TIME_CONSTANT_S, exponential_coefficient,
                                         weighting_sos)
@@ -153,8 +156,79 @@ def band_leq_spectral(
         spectral.push(chunk)
         frames += chunk.size
     _require_length(frames, sample_rate_hz, shortest_usable_s(bank), source_name, bank)
+    return _spectral_band_leq(bank, spectral, level_offset_db)
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class StationaryLevels:
+    """What :func:`stationary_levels` found: band Leq and the A-weighted level with its history."""
+
+    source_name: str
+    sample_rate_hz: float
+    duration_s: float
+    level_offset_db: float
+    band_leq: BandSpectrum           # quantity "Leq", by the spectral route
+    laeq_db: float                   # from WEIGHTING_SETTLE_S to the end
+    interval_s: float
+    laeq_history_db: np.ndarray      # per interval, read-only; nan where no sample is left after the settling
+
+
+def stationary_levels(
+    blocks: Iterable[np.ndarray],
+    *,
+    sample_rate_hz: float,
+    level_offset_db: float = 0.0,
+    fraction: Fraction = 3,
+    band_range_hz: tuple[float, float] | None = None,
+    history_interval_s: float = 1.0,
+    total_frames: int | None = None,
+    progress: Callable[[float], None] | None = None,
+    source_name: str = "signal",
+) -> StationaryLevels:
+    """Band Leq, LAeq and the LAeq history of a stationary take, and nothing else.
+
+    The same values as ``analyse_levels(..., band_route="spectral")`` gives for ``band_leq``,
+    ``laeq_db`` and ``history.laeq_db`` (band Leq from the power spectrum, the A-weighted levels
+    through the time-domain A filter), with the same checks, errors and ``progress`` calls, but
+    without C weighting, the F/S time weighting and their maxima: what a take of a sound
+    insulation test needs, at about a third of the cost.
+    """
+    bank = _bank(sample_rate_hz, fraction, band_range_hz, source_name)
+    if not (math.isfinite(history_interval_s) and history_interval_s * sample_rate_hz >= 1):
+        raise InputError(f"{source_name}: history interval must be at least one sample, got {history_interval_s}")
+    shortest_s = shortest_usable_s(bank)
+    if total_frames is not None:
+        _require_length(total_frames, sample_rate_hz, shortest_s, source_name, bank)
+    spectral = SpectralBands(bank)
+    sos = weighting_sos("A", sample_rate_hz=bank.sample_rate_hz).copy()   # writable copy for sosfilt
+    state = np.zeros((sos.shape[0], 2))
+    table = IntervalTable(1, round(history_interval_s * sample_rate_hz), "sum")
+    settle = math.ceil(WEIGHTING_SETTLE_S * bank.sample_rate_hz)
+    frames = 0
+    for chunk in _chunks(blocks, source_name):
+        spectral.push(chunk)
+        weighted, state = signal.sosfilt(sos, chunk, zi=state)
+        table.add(0, weighted, first_index=frames, step=1, valid_from=settle)
+        frames += chunk.size
+        if progress is not None and total_frames:
+            progress(min(1.0, frames / total_frames))
+    _require_length(frames, sample_rate_hz, shortest_s, source_name, bank)
+    if progress is not None:
+        progress(1.0)
+    sums, counts = table.totals()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        history_db = 10 * np.log10(table.rows()[:, 0] / table.row_counts()[:, 0]) + level_offset_db
+        laeq_db = float(10 * np.log10(sums[0] / counts[0]) + level_offset_db)
+    return StationaryLevels(source_name=source_name, sample_rate_hz=bank.sample_rate_hz,
+                            duration_s=frames / bank.sample_rate_hz, level_offset_db=level_offset_db,
+                            band_leq=_spectral_band_leq(bank, spectral, level_offset_db),
+                            laeq_db=laeq_db,
+                            interval_s=history_interval_s, laeq_history_db=_frozen(history_db))
+
+
+def _spectral_band_leq(bank: FilterBank, spectral: SpectralBands, level_offset_db: float) -> BandSpectrum:
     mean_squares = spectral.mean_squares()
-    if mean_squares is None:
+    if mean_squares is None:    # too short for the spectral route
         mean_squares = _filtered_mean_squares(bank, spectral.samples())[0]
     with np.errstate(divide="ignore"):
         return BandSpectrum.from_array(bank.nominal_hz, 10 * np.log10(mean_squares) + level_offset_db, "dB", "Leq",
@@ -175,7 +249,7 @@ def _bank(sample_rate_hz: float, fraction: Fraction, band_range_hz: tuple[float,
 def _filtered_mean_squares(bank: FilterBank, samples: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Band mean squares and sample counts of a short signal held in memory, through the bank in
     the time domain with each band's start-up transient discarded."""
-    table = _IntervalTable(len(bank.bands), max(1, samples.size), "sum")
+    table = IntervalTable(len(bank.bands), max(1, samples.size), "sum")
     settle = [math.ceil(band.settle_s * bank.sample_rate_hz / 2**band.stage) for band in bank.bands]
     for channel, (start, filtered) in enumerate(BankStream(bank).push(samples)):
         table.add(channel, filtered, first_index=start, step=2**bank.bands[channel].stage, valid_from=settle[channel])
@@ -249,8 +323,8 @@ class _Meter:
         self._time_weighting = [(exponential_coefficient(tau, sample_rate_hz=rate_hz), np.zeros(1))
                                 for tau in (FAST_TIME_CONSTANT_S, SLOW_TIME_CONSTANT_S)]
         # channels: the bands, then A and C
-        self._energy = _IntervalTable(len(bank.bands) + 2, interval_frames, "sum")
-        self._maxima = _IntervalTable(2, interval_frames, "max")   # F, S
+        self._energy = IntervalTable(len(bank.bands) + 2, interval_frames, "sum")
+        self._maxima = IntervalTable(2, interval_frames, "max")   # F, S
 
     def push(self, chunk: np.ndarray) -> None:
         first = self.frames
@@ -314,58 +388,3 @@ def _frozen(values: np.ndarray) -> np.ndarray:
     values = np.ascontiguousarray(values)
     values.flags.writeable = False
     return values
-
-
-class _IntervalTable:
-    """Per-interval sum of squares and sample count ("sum"), or maximum ("max"), of several
-    channels; grows by one row per history interval of ``interval_frames`` input frames."""
-
-    def __init__(self, channels: int, interval_frames: int, kind: str) -> None:
-        self._interval_frames = interval_frames
-        self._kind = kind
-        fill = 0.0 if kind == "sum" else -np.inf
-        self._fill = fill
-        self._values = np.full((16, channels), fill)
-        self._counts = np.zeros((16, channels), dtype=np.int64)
-        self._rows = 0
-
-    def add(self, channel: int, samples: np.ndarray, *, first_index: int, step: int, valid_from: int) -> None:
-        """Add samples whose first one has index ``first_index`` at a rate of one per ``step``
-        input frames; samples with an index below ``valid_from`` are skipped."""
-        skip = max(0, valid_from - first_index)
-        if skip >= samples.size:
-            return
-        samples = samples[skip:]
-        first_index += skip
-        first_row = first_index * step // self._interval_frames
-        last_row = (first_index + samples.size - 1) * step // self._interval_frames
-        self._grow(last_row + 1)
-        # sample j belongs to row floor(j * step / interval_frames); row m starts at ceil(m F / step)
-        cuts = [-(-row * self._interval_frames // step) - first_index for row in range(first_row + 1, last_row + 1)]
-        bounds = [0, *cuts, samples.size]
-        for row, (start, stop) in enumerate(zip(bounds, bounds[1:]), start=first_row):
-            piece = samples[start:stop]
-            if piece.size == 0:
-                continue
-            if self._kind == "sum":
-                self._values[row, channel] += np.einsum("i,i->", piece, piece)   # sum of squares
-                self._counts[row, channel] += piece.size
-            else:
-                self._values[row, channel] = max(self._values[row, channel], piece.max())
-
-    def _grow(self, rows: int) -> None:
-        if rows > self._values.shape[0]:
-            capacity = max(rows, 2 * self._values.shape[0])
-            extra = capacity - self._values.shape[0]
-            self._values = np.vstack([self._values, np.full((extra, self._values.shape[1]), self._fill)])
-            self._counts = np.vstack([self._counts, np.zeros((extra, self._counts.shape[1]), dtype=np.int64)])
-        self._rows = max(self._rows, rows)
-
-    def rows(self) -> np.ndarray:
-        return self._values[: self._rows]
-
-    def row_counts(self) -> np.ndarray:
-        return self._counts[: self._rows]
-
-    def totals(self) -> tuple[np.ndarray, np.ndarray]:
-        return self.rows().sum(axis=0), self.row_counts().sum(axis=0)

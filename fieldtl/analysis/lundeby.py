@@ -102,10 +102,25 @@ def _regress(levels_db: np.ndarray, times_s: np.ndarray, *, start: int,
     stop = start + 1 + int(below[0]) if below.size else levels_db.size
     if stop - start < 2 or levels_db[start] - end_level_db < 0.0:
         return None
-    slope, intercept = np.polyfit(times_s[start:stop], levels_db[start:stop], 1)
+    slope, intercept, _ = least_squares_line(times_s[start:stop], levels_db[start:stop])
     if not slope < 0.0:
         return None
-    return float(slope), float(intercept)
+    return slope, intercept
+
+
+def least_squares_line(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float]:
+    """Slope, intercept and correlation coefficient r of the least-squares line y = a x + b.
+
+    The closed form of ``numpy.polyfit(x, y, 1)`` and ``numpy.corrcoef(x, y)[0, 1]`` (the same
+    values to rounding) without their general machinery, which costs more than the fit itself
+    for the few hundred points of a decay. r is nan when x or y does not vary.
+    """
+    dx = x - x.mean()
+    dy = y - y.mean()
+    sxx, sxy, syy = float(dx @ dx), float(dx @ dy), float(dy @ dy)
+    slope = sxy / sxx if sxx > 0.0 else math.nan
+    r = sxy / math.sqrt(sxx * syy) if sxx * syy > 0.0 else math.nan
+    return slope, float(y.mean()) - slope * float(x.mean()), r
 
 
 def _db(power: np.ndarray | float) -> np.ndarray | float:

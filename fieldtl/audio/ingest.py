@@ -185,39 +185,43 @@ class SignalFacts:
 
 
 class _RunCounter:
-    """Counts runs of True in a boolean stream split across blocks."""
+    """Counts runs of True in a boolean stream split across blocks (vectorised per block)."""
 
     def __init__(self, *, min_length: int) -> None:
-        self.min_length = min_length
+        self.min_length = max(min_length, 1)
         self.runs = 0           # closed runs of at least min_length
         self.samples = 0        # samples in those runs
         self.longest = 0        # longest run seen, of any length
         self._open = 0          # length of the run still open at the end of the last block
 
-    def update(self, mask: np.ndarray) -> None:
-        padded = np.concatenate(([False], mask, [False])).astype(np.int8)
-        edges = np.flatnonzero(np.diff(padded))
+    def update(self, mask: np.ndarray | None) -> None:
+        """Add the next block's mask; None stands for a block with no True at all."""
+        if mask is None or not mask.any():
+            self.finish()
+            return
+        edges = np.flatnonzero(np.diff(mask.view(np.int8), prepend=0, append=0))
         starts, stops = edges[0::2], edges[1::2]
         lengths = stops - starts
-        if lengths.size and starts[0] == 0:
+        if starts[0] == 0:
             lengths[0] += self._open
         else:
-            self._close(self._open)
+            self.finish()
         self._open = 0
-        if lengths.size and stops[-1] == mask.size:
+        if stops[-1] == mask.size:
             self._open, lengths = int(lengths[-1]), lengths[:-1]
-        for length in lengths:
-            self._close(int(length))
+        if lengths.size:
+            self.longest = max(self.longest, int(lengths.max()))
+            long_runs = lengths[lengths >= self.min_length]
+            self.runs += long_runs.size
+            self.samples += int(long_runs.sum())
 
     def finish(self) -> None:
-        self._close(self._open)
-        self._open = 0
-
-    def _close(self, length: int) -> None:
-        self.longest = max(self.longest, length)
-        if length >= self.min_length and length > 0:
+        """Close the run left open by the last block."""
+        self.longest = max(self.longest, self._open)
+        if self._open >= self.min_length:
             self.runs += 1
-            self.samples += length
+            self.samples += self._open
+        self._open = 0
 
 
 class SampleStats:
@@ -242,18 +246,23 @@ class SampleStats:
             yield block
 
     def update(self, block: np.ndarray) -> None:
-        """Add one block of samples scaled to +-1."""
-        magnitude = np.abs(block)
+        """Add one block of samples scaled to +-1 (finite: iter_blocks has checked them)."""
         self._frames += block.size
-        if block.size:
-            self._peak = max(self._peak, float(magnitude.max()))
+        if not block.size:
+            return
+        magnitude = np.abs(block)
+        peak = float(magnitude.max())
+        self._peak = max(self._peak, peak)
         self._sum += float(block.sum())
-        self._over += int(np.count_nonzero(magnitude > FULL_SCALE))
-        self._denormal += int(np.count_nonzero((magnitude > 0.0) & (magnitude < DENORMAL_BELOW)))
-        self._clip_runs.update(magnitude >= NEAR_FULL_SCALE)
+        if peak > FULL_SCALE:
+            self._over += int(np.count_nonzero(magnitude > FULL_SCALE))
         zero = block == 0.0
-        self._zeros += int(zero.sum())
-        self._zero_runs.update(zero)
+        zeros = int(np.count_nonzero(zero))
+        self._zeros += zeros
+        # 0 < |x| < tiny: every sample below tiny but the exact zeros
+        self._denormal += int(np.count_nonzero(magnitude < DENORMAL_BELOW)) - zeros
+        self._clip_runs.update(magnitude >= NEAR_FULL_SCALE if peak >= NEAR_FULL_SCALE else None)
+        self._zero_runs.update(zero if zeros else None)
 
     def facts(self) -> SignalFacts:
         """Close open runs and return the facts with their findings."""
