@@ -3,9 +3,14 @@
     fieldtl team init --store postgresql://fieldtl@localhost/fieldtl --owner ann
     fieldtl team account tom --store ...            # a new account (asks its password)
     fieldtl team grant 3 tom tester --store ...      # tom becomes a tester on project 3
+    fieldtl team checkout 3 --account tom            # project 3 into this device's own store
+    fieldtl team push 7 --account tom [--mine 12] [--server 13]   # local project 7 back to the server
 
-``--store`` defaults to FIELDTL_STORE_URL. Passwords are asked twice on the terminal, or read
-from FIELDTL_NEW_PASSWORD (for scripts); they are stored as Argon2 hashes only.
+``--store`` defaults to FIELDTL_STORE_URL. New passwords are asked twice on the terminal, or read
+from FIELDTL_NEW_PASSWORD (for scripts); they are stored as Argon2 hashes only. Signing in for a
+check-out or push asks the password once, or reads FIELDTL_PASSWORD. A push with settings
+changed on both sides sends nothing, lists the tests, and exits with status 1: run it again
+with ``--mine TEST`` or ``--server TEST`` (local test ids) for each.
 """
 
 from __future__ import annotations
@@ -14,6 +19,7 @@ import argparse
 import getpass
 import os
 import sys
+from pathlib import Path
 from typing import Any
 
 from fieldtl.errors import InputError
@@ -21,6 +27,8 @@ from fieldtl.store.location import STORE_URL_VARIABLE, check_store_url
 from fieldtl.store.pg_schema import PROJECT_ROLES
 
 PASSWORD_VARIABLE = "FIELDTL_NEW_PASSWORD"
+LOGIN_VARIABLE = "FIELDTL_PASSWORD"
+EXIT_CONFLICTS = 1
 
 
 def add_team_options(sub: argparse._SubParsersAction) -> argparse.ArgumentParser:  # noqa: SLF001
@@ -35,7 +43,18 @@ def add_team_options(sub: argparse._SubParsersAction) -> argparse.ArgumentParser
     grant.add_argument("project_id", type=int)
     grant.add_argument("name")
     grant.add_argument("role", choices=PROJECT_ROLES)
-    for parser in (init, account, grant):
+    checkout = actions.add_parser("checkout", help="copy a server project into this device's store to work offline")
+    checkout.add_argument("project_id", type=int, help="the project's id on the server")
+    push = actions.add_parser("push", help="send a checked-out project back to the server (all or nothing)")
+    push.add_argument("project_id", type=int, help="the project's id in this device's store")
+    push.add_argument("--mine", type=int, action="append", default=[], metavar="TEST",
+                      help="settings conflict on this local test: keep this device's settings")
+    push.add_argument("--server", type=int, action="append", default=[], metavar="TEST",
+                      help="settings conflict on this local test: keep the server's settings")
+    for parser in (checkout, push):
+        parser.add_argument("--account", required=True, help="your account on the server")
+        parser.add_argument("--data-dir", type=Path, help="folder of this device's store (default: your user data folder)")
+    for parser in (init, account, grant, checkout, push):
         parser.add_argument("--store", help=f"postgresql:// URL of the server (default: {STORE_URL_VARIABLE})")
     return team
 
@@ -56,10 +75,46 @@ def run_team(args: argparse.Namespace) -> int:
         elif args.team_action == "account":
             made = server.create_account(args.name, _new_password(args.name), admin=args.admin)
             print(f"account {made.name} created" + (" (administrator)" if made.is_admin else ""))
-        else:
+        elif args.team_action == "grant":
             server.grant(args.project_id, args.name, args.role)
             print(f"{args.name} is now {args.role} on project {args.project_id}")
+        else:
+            return _offline(args, server.login(args.account, _password(args.account)))
     return 0
+
+
+def _offline(args: argparse.Namespace, account: Any) -> int:
+    from fieldtl.store import Store, default_data_dir
+    from fieldtl.store.connection import DATABASE_NAME
+    from fieldtl.store.offline import check_out, push
+
+    with Store.open((args.data_dir or default_data_dir()).expanduser() / DATABASE_NAME) as local:
+        if args.team_action == "checkout":
+            local_id = check_out(account, args.project_id, local)
+            print(f"project {args.project_id} checked out as project {local_id} of this device's store")
+            return 0
+        both = set(args.mine) & set(args.server)
+        if both:
+            raise InputError(f"team push: test {min(both)} given to both --mine and --server")
+        result = push(local, account, args.project_id,
+                      resolve={t: "mine" for t in args.mine} | {t: "server" for t in args.server})
+    if not result.pushed:
+        for conflict in result.conflicts:
+            print(f"test {conflict.local_test_id}: {conflict.message()}")
+        print("nothing was pushed: give --mine TEST or --server TEST for each test above")
+        return EXIT_CONFLICTS
+    print(f"pushed: {result.takes_added} takes and {result.tests_added} tests added, "
+          f"{result.tests_updated} tests' settings updated")
+    return 0
+
+
+def _password(name: str, *, ask: Any = getpass.getpass) -> str:
+    given = os.environ.get(LOGIN_VARIABLE)
+    if given is not None:
+        return given
+    if not sys.stdin.isatty():
+        raise InputError(f"team: no terminal to ask {name}'s password; set {LOGIN_VARIABLE}")
+    return ask(f"Password for {name}: ")
 
 
 def _new_password(name: str, *, ask: Any = getpass.getpass) -> str:

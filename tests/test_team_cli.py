@@ -4,8 +4,10 @@ Runs against the real PostgreSQL server scripts/test starts (FIELDTL_TEST_PG_URL
 command's exit status (2 for bad input, as every fieldtl command) and what the server then holds.
 """
 
+from dataclasses import replace
+
 import pytest
-from test_store import AIRBORNE
+from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
 
 from fieldtl.cli import main
@@ -42,3 +44,29 @@ def test_bad_server_settings_are_one_line_exit_2(monkeypatch, capsys):
     assert main(["app", "--store", "sqlite:///x"]) == 2
     assert capsys.readouterr().err.strip() == ("fieldtl: --store: expected a postgresql://user@host/database URL, "
                                                "got 'sqlite:///x'")
+
+
+def test_checkout_and_push_from_the_command_line(pg_url, monkeypatch, capsys, tmp_path):  # noqa: F811
+    monkeypatch.setenv("FIELDTL_NEW_PASSWORD", "invented-password-1")
+    monkeypatch.setenv("FIELDTL_PASSWORD", "invented-password-1")
+    monkeypatch.setenv("FIELDTL_STORE_URL", pg_url)
+    assert main(["team", "init", "--owner", "ann"]) == 0
+    with open_store(pg_url) as server:                     # audio in FIELDTL_DATA_DIR, as the command's
+        ann = server.login("ann", "invented-password-1")
+        test = ann.create_test(ann.create_project("Invented project").id, AIRBORNE)
+        laptop = ["--account", "ann", "--data-dir", str(tmp_path / "laptop")]
+        assert main(["team", "checkout", str(test.project_id), *laptop]) == 0
+        local_project = int(capsys.readouterr().out.split("checked out as project ")[1].split()[0])
+        with open_store(tmp_path / "laptop" / "fieldtl.sqlite3") as local:
+            local_test = local.list_tests(local_project)[0]
+            local.add_take(local_test.id, data=wav_bytes(), original_name="site.wav", role="source")
+            local.update_test(local_test.id, replace(AIRBORNE, settings={"here": 1}))
+        ann.update_test(test.id, replace(AIRBORNE, settings={"there": 1}))
+        assert main(["team", "push", str(local_project), *laptop]) == 1           # a conflict: nothing sent
+        out = capsys.readouterr().out
+        assert f"test {local_test.id}: test 'Bedroom 4 to bedroom 7': settings changed here and on the server" in out
+        assert ann.list_takes(test.id) == ()
+        assert main(["team", "push", str(local_project), *laptop, "--mine", str(local_test.id)]) == 0
+        assert "pushed: 1 takes and 0 tests added, 1 tests' settings updated" in capsys.readouterr().out
+        assert ann.get_test(test.id).setup.settings == {"here": 1}
+        assert [t.original_name for t in ann.list_takes(test.id)] == ["site.wav"]
