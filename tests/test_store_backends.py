@@ -12,6 +12,7 @@ import hashlib
 import inspect
 import os
 import signal
+import threading
 import uuid
 from concurrent.futures import ThreadPoolExecutor
 from urllib.parse import quote
@@ -120,6 +121,33 @@ def test_two_writers_adding_takes_at_once_lose_nothing(location, tmp_path):
         assert sorted(t.id for t in takes) == sorted(added) and len(set(added)) == 2 * count
         for take in takes:
             assert hashlib.sha256(store.take_path(take).read_bytes()).hexdigest() == take.sha256
+
+
+def test_a_reader_sees_one_consistent_state_while_a_writer_adds_takes(location, tmp_path):
+    # Each add_take commits the take and the project's updated_at (the take's created_at) together,
+    # so in any one committed state no take is newer than its project's updated_at.
+    with open_store(location, audio_dir=tmp_path / "audio") as setup:
+        project = setup.create_project("Invented project")
+        test_id = setup.create_test(project.id, AIRBORNE).id
+    done = threading.Event()
+
+    def write():
+        with open_store(location, audio_dir=tmp_path / "audio") as own:
+            for n in range(25):
+                own.add_take(test_id, data=wav_bytes(seconds=0.02, frequency_hz=300.0 + 7 * n),
+                             original_name=f"w{n}.wav", role="source")
+        done.set()
+
+    seen = []
+    with open_store(location, audio_dir=tmp_path / "audio") as reader:
+        writer = threading.Thread(target=write)
+        writer.start()
+        while not done.is_set():
+            snapshot = reader.snapshot(project.id)
+            assert all(t.created_at <= snapshot.project.updated_at for t in snapshot.takes)
+            seen.append(len(snapshot.takes))
+        writer.join()
+    assert len(set(seen)) > 1                      # the reader did read while takes were being added
 
 
 # --- PostgreSQL: schema -----------------------------------------------------------------------------
