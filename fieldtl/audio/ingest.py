@@ -199,7 +199,8 @@ class _RunCounter:
         if mask is None or not mask.any():
             self.finish()
             return
-        edges = np.flatnonzero(np.diff(mask.view(np.int8), prepend=0, append=0))
+        changes = np.flatnonzero(mask[1:] != mask[:-1]) + 1      # where a run starts or stops
+        edges = np.concatenate(([0] if mask[0] else [], changes, [mask.size] if mask[-1] else [])).astype(np.int64)
         starts, stops = edges[0::2], edges[1::2]
         lengths = stops - starts
         if starts[0] == 0:
