@@ -67,7 +67,9 @@ def weighting_db(weighting: Weighting, frequency_hz: ArrayLike) -> np.ndarray:
 def weighting_sos(weighting: Weighting, *, sample_rate_hz: float) -> np.ndarray:
     """Second-order sections of the digital A or C weighting filter at ``sample_rate_hz``.
 
-    Designed once per process for each weighting and rate; the array is shared and read-only
+    Designed once per process for each weighting and rate (at 44.1, 48 and 96 kHz the design is
+    read from fieldtl.analysis.weighting_designs, where :func:`fitted_sos` put it); the array is
+    shared and read-only
     (``scipy.signal.sosfilt`` refuses read-only sections: filter with a copy). Does not check
     the IEC 61672-1 tolerances; see the weighting tests for that.
     """
@@ -80,6 +82,18 @@ def weighting_sos(weighting: Weighting, *, sample_rate_hz: float) -> np.ndarray:
 
 @functools.lru_cache(maxsize=32)
 def _weighting_sos(weighting: Weighting, sample_rate_hz: float) -> np.ndarray:
+    from fieldtl.analysis.weighting_designs import FITTED_SOS
+
+    shipped = FITTED_SOS.get((weighting, sample_rate_hz))
+    sos = np.array(shipped) if shipped is not None else fitted_sos(weighting, sample_rate_hz)
+    sos.flags.writeable = False
+    return sos
+
+
+def fitted_sos(weighting: Weighting, sample_rate_hz: float) -> np.ndarray:
+    """The design of :func:`weighting_sos` made afresh (about 0.1 s): bilinear low-frequency part,
+    two biquads fitted by least squares, gain exact at 1 kHz. weighting_sos takes the result for
+    44.1, 48 and 96 kHz from fieldtl.analysis.weighting_designs, where it is kept."""
     low_pole_hz = [F1_HZ, F1_HZ] + ([F2_HZ, F3_HZ] if weighting == "A" else [])
     # Bilinear transform of s^n / Π(s + 2π fi): n zeros at 0 Hz, one per low-frequency pole.
     zeros_z, poles_z, gain = signal.bilinear_zpk(
@@ -103,9 +117,7 @@ def _weighting_sos(weighting: Weighting, sample_rate_hz: float) -> np.ndarray:
     # exact agreement with the analytic curve at the 1 kHz reference frequency
     at_1k = np.exp(-2j * np.pi * 1000.0 / sample_rate_hz)
     gain = 10 ** (weighting_db(weighting, 1000.0) / 20) / np.abs(_zpk_on_grid(zeros_z, poles_z, np.array([at_1k])))[0]
-    sos = signal.zpk2sos(zeros_z, poles_z, gain)
-    sos.flags.writeable = False
-    return sos
+    return signal.zpk2sos(zeros_z, poles_z, gain)
 
 
 def _zpk_on_grid(zeros: np.ndarray, poles: np.ndarray, unit_z: np.ndarray) -> np.ndarray:
