@@ -163,7 +163,7 @@ def integrated_decay_curve(band_response: np.ndarray, *, nominal_hz: float, samp
     elif noise_handling == "truncate":
         kept, kept_energy = energy[:end], head_energy
     else:
-        kept = energy[:end] - floor.noise_power
+        kept = np.subtract(energy[:end], floor.noise_power, out=energy[:end])   # energy is not used again
         kept_energy = float(np.sum(kept))
     initial_energy = kept_energy + tail_energy
     if initial_energy <= 0.0:

@@ -147,7 +147,7 @@ class SpectralBands:
         self._segment_frames = segment_frames
         self._window = _sine_window(segment_frames)
         self._power = np.zeros(segment_frames // 2 + 1)
-        self._pending = [np.concatenate(self._pending).astype(np.float32)]
+        self._pending = [np.concatenate(self._pending, dtype=np.float32)]
 
     def _transform_pending(self) -> None:
         frames, hop = self._segment_frames, self._segment_frames // 2

@@ -117,11 +117,13 @@ def iter_blocks(recording: Recording, *, block_frames: int = DEFAULT_BLOCK_FRAME
     """
     frames_read = 0
     block_frames = max(1, min(block_frames, MAX_BLOCK_BYTES // (8 * recording.channels)))
+    may_be_non_finite = recording.subtype in ("FLOAT", "DOUBLE")   # integer samples are always finite
     try:
         with soundfile.SoundFile(recording.path) as handle:
-            for block in handle.blocks(blocksize=block_frames, dtype="float64", always_2d=True):
+            # read() hands out a new array per block (SoundFile.blocks copies each block once more)
+            while (block := handle.read(block_frames, dtype="float64", always_2d=True)).shape[0]:
                 samples = np.ascontiguousarray(block[:, recording.channel])
-                if not np.all(np.isfinite(samples)):
+                if may_be_non_finite and not np.all(np.isfinite(samples)):
                     bad_s = (frames_read + int(np.argmin(np.isfinite(samples)))) / recording.sample_rate_hz
                     raise InputError(f"{recording.name}: contains NaN or infinite samples (first at "
                                      f"{bad_s:.3f} s)")
