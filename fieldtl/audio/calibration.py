@@ -7,6 +7,7 @@ differences (D, NR) are valid either way because both rooms use the same chain.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -106,11 +107,19 @@ def calibration_drift(before: Calibration, after: Calibration, *,
 def _dominant_frequency_hz(samples: np.ndarray, *, sample_rate_hz: float) -> float:
     """Frequency of the strongest spectral peak, refined by parabolic interpolation of log magnitude."""
     frames = samples[: int(sample_rate_hz * 4)]  # 4 s are plenty for a 0.25 Hz resolution
-    spectrum = np.abs(np.fft.rfft(frames * np.hanning(frames.size)))
+    spectrum = np.abs(np.fft.rfft(frames * _hann(frames.size)))
     k = int(np.argmax(spectrum[1:-1])) + 1
     a, b, c = np.log(spectrum[k - 1 : k + 2] + 1e-300)
     shift = 0.5 * (a - c) / (a - 2 * b + c) if (a - 2 * b + c) != 0 else 0.0
     return (k + shift) * sample_rate_hz / frames.size
+
+
+@functools.lru_cache(maxsize=4)
+def _hann(frames: int) -> np.ndarray:
+    """numpy's Hann window of ``frames`` samples, made once per length (calibrator takes share one)."""
+    window = np.hanning(frames)
+    window.flags.writeable = False
+    return window
 
 
 def _segment_range_db(band: np.ndarray, *, sample_rate_hz: float) -> float:
