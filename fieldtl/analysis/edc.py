@@ -95,15 +95,19 @@ def fit_decay_line(time_s: np.ndarray, level_db: np.ndarray, *, top_db: float,
                      nonlinearity_permille=float(1000.0 * (1.0 - r * r)))   # ISO 3382-2 Annex B (from memory)
 
 
-def schroeder_decay_db(energy: np.ndarray, *, tail_energy: float = 0.0, step: int = 1) -> np.ndarray:
+def schroeder_decay_db(energy: np.ndarray, *, tail_energy: float = 0.0, step: int = 1,
+                       overwrite: bool = False) -> np.ndarray:
     """Backward-integrated energy plus ``tail_energy``, in dB re its first value (0 dB at t = 0).
 
     E(t) = Σ_{τ >= t} e(τ) + tail (Schroeder 1965; facts sheet 6.3). ``energy`` is the squared
     band signal, already truncated and noise-subtracted as wanted. Points where the integral is
     not positive (after noise subtraction) end the curve. Returns every ``step``-th point of the
-    curve (the same values, only fewer logarithms taken). Does not find the start or the noise.
+    curve (the same values, only fewer logarithms taken). With ``overwrite`` the integral is
+    built in ``energy`` itself (a float64 array the caller no longer needs), saving a copy.
+    Does not find the start or the noise.
     """
-    integral = np.cumsum(np.asarray(energy, dtype=float)[::-1])[::-1]
+    energy = np.asarray(energy, dtype=float)
+    integral = np.cumsum(energy[::-1], out=energy[::-1] if overwrite else None)[::-1]
     integral += tail_energy
     if integral.size == 0 or integral[0] <= 0.0:
         raise InputError("decay has no energy above the noise estimate")
@@ -169,6 +173,6 @@ def integrated_decay_curve(band_response: np.ndarray, *, nominal_hz: float, samp
     if initial_energy <= 0.0:
         return None    # nothing left above the noise estimate
     step = max(1, round(CURVE_STEP_S * sample_rate_hz))
-    level_db = schroeder_decay_db(kept, tail_energy=tail_energy, step=step)
+    level_db = schroeder_decay_db(kept, tail_energy=tail_energy, step=step, overwrite=True)   # kept is ours
     return DecayCurve(nominal_hz, fraction, step / sample_rate_hz, tuple(level_db.tolist()),
                       dynamic_range_db, "integrated_impulse_response", initial_energy)

@@ -48,7 +48,9 @@ def estimate_noise_floor(energy: np.ndarray, *, sample_rate_hz: float, window_s:
     time are None and the noise power is the mean of the last 10 %. Does not integrate, truncate
     or subtract anything; see fieldtl.analysis.decay.
     """
-    energy = np.maximum(energy, float(np.max(energy)) * 10.0 ** (ENERGY_FLOOR_DB / 10.0))
+    floor = float(np.max(energy)) * 10.0 ** (ENERGY_FLOOR_DB / 10.0)
+    if float(np.min(energy)) < floor:      # a copy only where some sample is below the floor
+        energy = np.maximum(energy, floor)
     noise_power = float(np.mean(energy[int(energy.size * (1.0 - NOISE_TAIL_FRACTION)):]))
     levels_db, times_s = _smoothed_db(energy, sample_rate_hz, window_s)
     if levels_db.size < 3:
