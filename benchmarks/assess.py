@@ -7,7 +7,8 @@ designs made by the first run are reused, as they are for the later takes of one
 For comparison, every audio file the survey names is read whole with soundfile. Both are timed
 REPEATS times, taking turns; the medians are compared.
 
-Prints the first run apart (it designs the filters), then the same assessment with every take
+Prints the first run apart (it designs the filters), the time one run spends on level takes, decays
+and calibration tones, then the same assessment with every take
 already measured (read from a store's kept measurements, as a second ``fieldtl assess`` or the app
 after a restart does; target at most 0.3 s), and ends with the line
 ``assess <s>s decode <s>s ratio <r>x``. Target (issue 10): ratio at most 5.
@@ -30,6 +31,7 @@ sys.path.insert(0, str(ROOT))
 import soundfile  # noqa: E402
 
 from fieldtl.assess import AssessOptions  # noqa: E402
+from fieldtl.measure import calibrate_file, measure_take  # noqa: E402
 from fieldtl.measure_cache import forget_file_hashes  # noqa: E402
 from fieldtl.report.export import assessment_to_json, assessment_to_text  # noqa: E402
 from fieldtl.store import Store  # noqa: E402
@@ -57,6 +59,23 @@ def audio_files(survey: Survey) -> list[Path]:
         if survey.calibration.file_after is not None:
             files.append(survey.calibration.file_after)
     return files
+
+
+def time_by_kind(survey: Survey) -> dict[str, float]:
+    """Seconds spent measuring the level takes, the decays and the calibration tones, once each
+    (where an assessment's time goes; the rest is the assessment itself and its reports)."""
+    spent = {"level takes": 0.0, "decays": 0.0, "calibration": 0.0}
+    for spec in survey.takes:
+        start = time.perf_counter()
+        measure_take(spec, level_offset_db=0.0)
+        spent["decays" if spec.role == "decay" else "level takes"] += time.perf_counter() - start
+    calibration = survey.calibration
+    for file in () if calibration is None else (calibration.file, calibration.file_after):
+        if file is not None:
+            start = time.perf_counter()
+            calibrate_file(file, calibration.channel, calibration.reference_db)
+            spent["calibration"] += time.perf_counter() - start
+    return spent
 
 
 def decode_all(files: list[Path]) -> int:
@@ -91,6 +110,7 @@ def main() -> None:
           f"median of {REPEATS}, load average {load:.2f}")
     print(f"first run in this process (designs the filters) {first_s:.3f} s")
     print(f"assess runs: " + " ".join(f"{t:.3f}" for t in assess_s) + " s")
+    print("of one run: " + ", ".join(f"{kind} {s:.3f} s" for kind, s in time_by_kind(load_survey(path)).items()))
     cached_median = statistics.median(cached_s)
     print(f"with every take already measured: assess {cached_median:.3f}s (target <= 0.3 s) "
           f"decode {decode_median:.3f}s ratio {cached_median / decode_median:.1f}x")
