@@ -3,13 +3,13 @@
     python benchmarks/store.py                            # SQLite in a temporary folder
     python benchmarks/store.py --store postgresql://...   # a team server (use a throw-away database)
 
-The store is first filled to ``--fill`` takes (rows sharing one invented audio file, added as one
-project copy), then ``--writers`` processes each add ``--takes`` takes of ``--seconds`` s of an
-invented tone (distinct audio, checked and hashed as every upload is) to their own test, while
-``--readers`` processes repeatedly load what the Results page reads for a test of that big
-project (the test, its takes, the calculator's survey) and time each load. Afterwards every take a
-writer reported is looked for. The audio and the SQLite store live in a temporary folder removed
-at the end; on PostgreSQL the benchmark's project is deleted (its audio folder is temporary too).
+The store is first filled to ``--fill`` takes (50 per test, rows sharing one invented audio file,
+added as one project copy), then ``--writers`` processes each add ``--takes`` takes of
+``--seconds`` s of an invented tone (distinct audio, checked and hashed as every upload is) to
+their own test, while ``--readers`` processes repeatedly load what the Results page reads for a
+random filled test (the test, its takes, the calculator's survey) and time each load. Afterwards
+every take a writer reported is looked for. The audio and the SQLite store live in a temporary
+folder removed at the end; on PostgreSQL the benchmark's projects are deleted afterwards.
 Target on a 2-core machine: no take lost, p95 load under 500 ms with 10 000 takes in the store.
 Last line: ``store <backend> takes_per_s <n> p95_read_ms <m> lost <k>``.
 """
@@ -19,10 +19,13 @@ from __future__ import annotations
 import argparse
 import io
 import multiprocessing
+import os
+import random
 import statistics
 import sys
 import tempfile
 import time
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -35,6 +38,7 @@ from fieldtl.store import ProjectSnapshot, TakeRecord, TestSetup  # noqa: E402
 from fieldtl.store.location import open_store  # noqa: E402
 
 RATE_HZ = 44_100
+TAKES_PER_TEST = 50             # a large field test: several positions, decays, background, calibration
 ROLES = ("source", "receiving", "background", "decay")      # what an airborne test's results need
 WAIT_S = 900.0
 SETUP = TestSetup(title="Invented benchmark room", test_type="airborne", receiving_volume_m3=40.0,
@@ -48,21 +52,23 @@ def tone(seconds: float, hz: float) -> bytes:
     return buffer.getvalue()
 
 
-def fill(store, count: int, audio: Path) -> tuple[int, int]:
-    """A project with one test holding ``count`` takes of one stored file; returns (project, test) ids."""
+def fill(store, count: int, audio: Path) -> tuple[int, tuple[int, ...]]:
+    """A project of tests holding ``count`` takes in all (TAKES_PER_TEST each, rows sharing one stored
+    file); returns the project id and its test ids."""
     project = store.create_project("Invented benchmark project")
-    test = store.create_test(project.id, SETUP)
-    seed = store.add_take(test.id, data=audio.read_bytes(), original_name="seed.wav", role="source")
-    if count > 1:
-        takes = tuple(TakeRecord(**{**{f: getattr(seed, f) for f in seed.__dataclass_fields__},
-                                    "id": n, "speaker": 1 + n % 5, "original_name": f"fill{n}.wav",
-                                    "role": ROLES[n % 4], "method": "interrupted" if n % 4 == 3 else None})
-                      for n in range(count - 1))
-        incoming = store.incoming_path()
-        incoming.write_bytes(audio.read_bytes())
-        project = store.add_project_copy(ProjectSnapshot(project, (store.get_test(test.id),), takes),
-                                         {seed.file_name: incoming})
-    return project.id, store.list_tests(project.id)[0].id
+    first = store.create_test(project.id, SETUP)
+    seed = store.add_take(first.id, data=audio.read_bytes(), original_name="seed.wav", role="source")
+    fields = {f: getattr(seed, f) for f in seed.__dataclass_fields__}
+    tests = tuple(replace(first, id=k) for k in range(max(1, count // TAKES_PER_TEST)))
+    takes = tuple(TakeRecord(**fields | {"id": n, "test_id": min(n // TAKES_PER_TEST, len(tests) - 1), "speaker": 1 + n % 5,
+                                         "original_name": f"fill{n}.wav", "role": ROLES[n % 4],
+                                         "method": "interrupted" if n % 4 == 3 else None})
+                  for n in range(count))
+    incoming = store.incoming_path()
+    incoming.write_bytes(audio.read_bytes())
+    copy = store.add_project_copy(ProjectSnapshot(project, tests, takes), {seed.file_name: incoming})
+    store.delete_project(project.id)
+    return copy.id, tuple(t.id for t in store.list_tests(copy.id))
 
 
 def writer(location: str, audio_dir: str, worker: int, takes: int, seconds: float, start, out) -> None:
@@ -75,11 +81,13 @@ def writer(location: str, audio_dir: str, worker: int, takes: int, seconds: floa
         out.put(("writer", test.id, ids, time.perf_counter() - began))
 
 
-def reader(location: str, audio_dir: str, test_id: int, start, stop, out) -> None:
+def reader(location: str, audio_dir: str, test_ids: tuple[int, ...], start, stop, out) -> None:
     times = []
+    pick = random.Random(os.getpid()).choice
     with open_store(location, audio_dir=Path(audio_dir)) as store:
         start.wait(timeout=WAIT_S)
         while not stop.is_set():
+            test_id = pick(test_ids)
             began = time.perf_counter()
             store.get_test(test_id)
             store.list_takes(test_id)
@@ -105,13 +113,13 @@ def main() -> None:
         seed.write_bytes(tone(args.seconds, 997.0))
         with open_store(location, audio_dir=Path(audio_dir)) as store:
             began = time.perf_counter()
-            big_project, big_test = fill(store, args.fill, seed)
+            big_project, big_tests = fill(store, args.fill, seed)
             print(f"filled {args.fill} takes in {time.perf_counter() - began:.1f} s")
         context = multiprocessing.get_context("spawn")
         start, stop, out = context.Barrier(args.writers + args.readers + 1), context.Event(), context.Queue()
         workers = [context.Process(target=writer, args=(location, audio_dir, w, args.takes, args.seconds, start, out))
                    for w in range(args.writers)]
-        readers = [context.Process(target=reader, args=(location, audio_dir, big_test, start, stop, out))
+        readers = [context.Process(target=reader, args=(location, audio_dir, big_tests, start, stop, out))
                    for _ in range(args.readers)]
         for process in workers + readers:
             process.start()
