@@ -339,11 +339,13 @@ def _run_app(args: argparse.Namespace) -> int:
         print("https with a self-signed certificate: each browser asks once whether to trust it")
     env = {k: v for k, v in os.environ.items() if k != access.ENV_VAR}
     env["FIELDTL_DATA_DIR"] = str(data_dir)
+    from fieldtl.store.location import STORE_URL_VARIABLE, check_store_url
     if args.store is not None:          # the team server (fieldtl.store.location); its audio in data_dir
-        from fieldtl.store.location import STORE_URL_VARIABLE, check_store_url
         check_store_url(args.store, "--store")
         env[STORE_URL_VARIABLE] = args.store
-    code = chosen or (access.new_code() if args.host not in LOCAL_HOSTS else None)
+    server = env.get(STORE_URL_VARIABLE, "").strip()
+    # On a team server accounts sign in (ui/login.py) and no access code is asked.
+    code = None if server else chosen or (access.new_code() if args.host not in LOCAL_HOSTS else None)
     if code is not None:
         env[access.ENV_VAR] = code
         print(f"Access code for every browser: {code}  (spaces, dashes and capitals do not matter)")
@@ -355,7 +357,11 @@ def _run_app(args: argparse.Namespace) -> int:
         command += ["--server.sslCertFile", str(args.cert.resolve()), "--server.sslKeyFile", str(args.key.resolve())]
     scheme = "https" if args.cert else "http"
     urls = ", ".join(f"{scheme}://{a}:{args.port}" for a in reachable_addresses(args.host))   # never 0.0.0.0
-    print(f"fieldtl app on {urls}  (store: {data_dir}); Ctrl+C stops it")
+    if server:
+        from fieldtl.store.pg_database import shown_url
+        print(f"fieldtl app on {urls}  (team server {shown_url(server)}, audio in {data_dir}); Ctrl+C stops it")
+    else:
+        print(f"fieldtl app on {urls}  (store: {data_dir}); Ctrl+C stops it")
     print(f"CAUTION: {CAUTIONS[0]}\nCAUTION: {CAUTIONS[1]}")
     sys.stdout.flush()
     sys.stderr.flush()
