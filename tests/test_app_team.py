@@ -7,7 +7,7 @@ from pathlib import Path
 import pytest
 import streamlit as st
 from streamlit.testing.v1 import AppTest
-from test_store import AIRBORNE
+from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
 
 from fieldtl.store.location import open_store
@@ -65,3 +65,35 @@ def test_a_wrong_password_opens_nothing(team_app):
     assert "not recognised" in at.error[0].value
     assert [t.label for t in at.text_input] == ["Account", "Password"]
     assert not any(t.value == "Projects" for t in at.title)
+
+
+def _review_page():
+    import os
+
+    from fieldtl.ui import review
+    review.draw(int(os.environ["FIELDTL_REVIEW_TEST"]))
+
+
+def test_the_review_section_signs_off_and_tells_the_changes_in_words(team_app, pg_url, tmp_path, monkeypatch):  # noqa: F811
+    with open_store(pg_url, audio_dir=tmp_path / "data" / "audio") as server:
+        ann, olga = server.login("ann", PASSWORD), server.login("olga", PASSWORD)
+        test = ann.list_tests(ann.list_projects()[0].id)[0]
+        take = ann.add_take(test.id, data=wav_bytes(), original_name="s1.wav", role="source")
+        ann.set_take_excluded(take.id, True)
+        ann.grant(test.project_id, "olga", "reviewer")
+        monkeypatch.setenv("FIELDTL_REVIEW_TEST", str(test.id))
+        at = AppTest.from_function(_review_page, default_timeout=60)
+        at.session_state["fieldtl_account_store"] = olga
+        at.run()
+        assert not at.exception, [e.value for e in at.exception]
+        assert "Not signed off yet." in [m.value for m in at.markdown]
+        at.text_input[0].input("Checked on site")
+        at.button[0].click().run()
+        assert not at.exception, [e.value for e in at.exception]
+        assert any(m.value.startswith("Signed off by olga on ") and m.value.endswith(": Checked on site")
+                   for m in at.markdown)
+        shown = at.table[0].value
+        assert list(shown["Who"]) == ["ann", "ann", "ann", "olga"]
+        assert list(shown["What"]) == ["created the test", "added take s1.wav", "changed a take (included/excluded)",
+                                       "signed the test off: Checked on site"]
+        assert take.sha256 not in shown.to_string() and take.file_name not in shown.to_string()

@@ -7,7 +7,7 @@ import streamlit as st
 from fieldtl.errors import FieldTLError
 from fieldtl.report.export import assessment_to_csv, assessment_to_json, json_text
 from fieldtl.report.pdf import ReportDetails, assessment_to_pdf
-from fieldtl.ui import cached, common, gate
+from fieldtl.ui import cached, common, gate, review
 
 REPORT_SETTING = "report_details"
 
@@ -63,4 +63,5 @@ with common.fenced():
                            mime="text/csv")
     common.download_button("Download everything (JSON)", json_text(assessment_to_json(assessment)),
                            file_name=f"{stem}.json", mime="application/json")
+    review.draw(test.id)          # team server only: sign-offs and who changed what
     common.cautions()
