@@ -7,7 +7,7 @@ import streamlit as st
 from fieldtl.errors import FieldTLError
 from fieldtl.report.export import assessment_to_csv, assessment_to_json, json_text
 from fieldtl.report.pdf import ReportDetails, assessment_to_pdf
-from fieldtl.ui import cached, common, gate, review
+from fieldtl.ui import cached, common, gate, review, versions
 
 REPORT_SETTING = "report_details"
 
@@ -24,6 +24,7 @@ with common.fenced():
         st.stop()
 
     saved = test.setup.settings.get(REPORT_SETTING, {})
+    drawn_version = versions.drawn(test)          # a stale edit of the details is refused
     with st.form("report-details"):
         organisation = common.text_field("Organisation", saved.get("organisation", ""), limit=common.NAME_CHARS)
         engineer = common.text_field("Engineer / operator", saved.get("engineer", project.engineer),
@@ -40,7 +41,9 @@ with common.fenced():
                        "instruments": instruments, "positions_description": positions, "notes": notes}
             try:
                 test = store.update_test(test.id, dataclasses.replace(
-                    test.setup, settings={**test.setup.settings, REPORT_SETTING: details}))
+                    test.setup, settings={**test.setup.settings, REPORT_SETTING: details}),
+                    expected_updated_at=drawn_version)
+                versions.forget(test.id)
             except FieldTLError as exc:
                 st.error(common.md(exc))
             else:

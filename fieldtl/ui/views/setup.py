@@ -8,7 +8,7 @@ from fieldtl.construction import MATERIALS
 from fieldtl.errors import FieldTLError
 from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK, marked
 from fieldtl.store import CONSTRUCTION_SETTING, TestSetup, declared_construction
-from fieldtl.ui import buildup, cached, common, gate, state
+from fieldtl.ui import buildup, cached, common, gate, state, versions
 from fieldtl.uncertainty import EXAMPLE_REQUIREMENTS, SITUATIONS
 
 
@@ -35,6 +35,7 @@ with common.fenced():
                           format_func=lambda i: "New test" if i is None else next(t.setup.title for t in tests if t.id == i))
     state.open_test(chosen)
     existing = next((t.setup for t in tests if t.id == chosen), None)
+    drawn_version = next((versions.drawn(t) for t in tests if t.id == chosen), None)   # stale edits refused
     old = existing or TestSetup(title="", test_type="airborne", receiving_volume_m3=30.0)
 
 
@@ -77,7 +78,9 @@ with common.fenced():
                                         element_lab_rw_db=_optional(lab_rw), uncertainty_situation=situation,
                                         calibrator_db=calibrator_db, settings=settings)
             declared_construction(setup, "declared build-up")   # refuse a bad construction before saving
-            record = store.update_test(chosen, setup) if chosen is not None else store.create_test(project.id, setup)
+            record = (store.update_test(chosen, setup, expected_updated_at=drawn_version) if chosen is not None
+                      else store.create_test(project.id, setup))
+            versions.forget(record.id)
         except FieldTLError as exc:
             st.error(common.md(exc))
         else:
