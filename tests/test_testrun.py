@@ -341,7 +341,7 @@ def test_an_older_store_gains_the_table_and_keeps_its_rows(tmp_path, monkeypatch
         project_id = old.create_project("Kept").id
     monkeypatch.setattr(schema, "MIGRATIONS", MIGRATIONS)
     with Store.open(database) as upgraded:
-        assert upgraded.applied_migrations == ("m0002_take_measurements",)
+        assert upgraded.applied_migrations == tuple(m.__name__ for m in MIGRATIONS[1:])   # m0002 and any later
         assert upgraded.get_project(project_id).name == "Kept"
         assert upgraded.measurements.keys() == frozenset()
     raw = sqlite3.connect(database)

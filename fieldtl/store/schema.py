@@ -306,7 +306,30 @@ def m0002_take_measurements(connection: sqlite3.Connection) -> None:
     connection.execute("CREATE INDEX take_measurements_sha256 ON take_measurements(sha256)")
 
 
-MIGRATIONS: tuple[Migration, ...] = (m0001_create_tables, m0002_take_measurements)
+def m0003_complaints(connection: sqlite3.Connection) -> None:
+    """Complaint files (fieldtl.store.complaints): a reference, rooms, zone, diary and a linked test;
+    their recording periods kept as noise-record JSON (no audio). Deleting a complaint deletes its
+    periods; deleting the linked test only unlinks it."""
+    connection.execute("""CREATE TABLE complaints (
+            id INTEGER PRIMARY KEY,
+            reference TEXT NOT NULL,
+            rooms TEXT NOT NULL DEFAULT '',
+            time_zone TEXT NOT NULL,
+            test_id INTEGER REFERENCES tests(id) ON DELETE SET NULL,
+            diary_csv TEXT NOT NULL DEFAULT '',
+            created_at TEXT NOT NULL,
+            updated_at TEXT NOT NULL)""")
+    connection.execute("""CREATE TABLE complaint_periods (
+            id INTEGER PRIMARY KEY,
+            complaint_id INTEGER NOT NULL REFERENCES complaints(id) ON DELETE CASCADE,
+            name TEXT NOT NULL,
+            record TEXT NOT NULL CHECK (json_valid(record)),
+            keep_clips INTEGER NOT NULL CHECK (keep_clips IN (0, 1)),
+            created_at TEXT NOT NULL)""")
+    connection.execute("CREATE INDEX complaint_periods_complaint ON complaint_periods(complaint_id)")
+
+
+MIGRATIONS: tuple[Migration, ...] = (m0001_create_tables, m0002_take_measurements, m0003_complaints)
 SCHEMA_VERSION = len(MIGRATIONS)
 
 

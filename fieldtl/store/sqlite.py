@@ -26,6 +26,7 @@ from fieldtl.store.connection import Database
 from fieldtl.store.errors import StaleEditError
 from fieldtl.store.files import (STALE_INCOMING_S, WHOLE_READ_ROLES, check_audio_file, incoming_name,
                                  leftover_files, place_file, write_durably)
+from fieldtl.store.complaints import CLIPS_FOLDER, ComplaintRows
 from fieldtl.store.measurements import MeasurementRows
 from fieldtl.store.schema import (Project, ProjectSnapshot, TakeRecord, TestRecord, TestSetup, check_project_texts,
                                   check_recording_name, check_take_fields, utc_now)
@@ -51,6 +52,9 @@ class Store:
         self.max_take_bytes = max_take_bytes
         self.applied_migrations = database.applied_migrations   # applied when this Store opened the database
         self.measurements = MeasurementRows(database)      # take measurements by content (fieldtl.testrun)
+        # complaint files (fieldtl.noise) live in this device's SQLite store only, not on a team server
+        self.complaints = (ComplaintRows(database, clips_dir=(folder or audio_dir) / CLIPS_FOLDER)
+                           if isinstance(database, Database) else None)
 
     @classmethod
     def open(cls, path: str | Path, *, audio_dir: Path | None = None,
