@@ -66,6 +66,7 @@ def main() -> None:
         ],
         "More": [
             st.Page(PAGES / "construction.py", title="Construction check", icon="🧱"),
+            st.Page(PAGES / "complaints.py", title="Noise complaints", icon="🌙"),
             st.Page(PAGES / "report.py", title="Report and export", icon="📄"),
             st.Page(PAGES / "signals.py", title="Test signals", icon="🔊"),
             st.Page(PAGES / "safety.py", title="Safety and about", icon="⚠️"),
