@@ -92,3 +92,44 @@ def test_clips_only_when_switched_on_and_gone_with_the_period(data_dir, tmp_path
     assert not folders[0].exists() and len(list(folders[1].glob("event-001-*.wav"))) == 1
     next(b for b in at.button if b.key == f"delete-period-{with_clips.id}").click().run()
     assert not folders[1].exists()
+
+
+PASTED = "frequency_hz,L1_s1,L2_s1,B,T\n" + "\n".join(
+    f"{f},95.0,{45.0 - i * 0.5:.1f},{25.0 - i:.1f},0.6" for i, f in enumerate(
+        (100, 125, 160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250, 1600, 2000, 2500, 3150)))
+
+
+def test_link_to_a_separation_test_of_the_store(data_dir):
+    import json as json_module
+    from datetime import timezone
+
+    from noise_night import Burst, night_source
+
+    from fieldtl.noise.export import record_to_json
+    from fieldtl.noise.record import analyse_sources
+    from fieldtl.noise.settings import RecordSettings
+    from fieldtl.report.export import json_text
+    from fieldtl.store import TestSetup
+
+    source = night_source(duration_s=120.0, background_dbfs=-70.0, bursts=(Burst(30.0, 3.0, -45.0),))
+    record = analyse_sources([source], RecordSettings(interval_min=1), level_offset_db=90.0,
+                             start=datetime(2026, 11, 28, 23, 0, tzinfo=timezone.utc))
+    with Store.open(data_dir / "fieldtl.sqlite3") as store:
+        project = store.create_project("Invented block")
+        test = store.create_test(project.id, TestSetup(title="Party wall (invented)", test_type="airborne",
+                                                       receiving_volume_m3=30.0, separating_area_m2=10.0))
+        store.set_band_levels(test.id, PASTED)
+        complaint = store.complaints.create("Flat 7 (invented)")
+        store.complaints.update(complaint.id, reference=complaint.reference, rooms="", time_zone="UTC",
+                                test_id=test.id, diary_csv="")
+        store.complaints.add_period(complaint.id, "night 1", record_json=json_text(record_to_json(record)),
+                                    keep_clips=False)
+    at = AppTest.from_file(APP, default_timeout=180)
+    at.run()
+    at.switch_page("views/complaints.py").run()
+    assert not at.exception, [e.value for e in at.exception]
+    texts = " ".join(c.value for c in at.caption) + " ".join(m.value for m in at.markdown)
+    assert "Source spectrum: invented (not measured)" in texts
+    # the 1 kHz tone bursts read 45 dB in the 1 kHz band, far above music through DnT there: an excess above 200 Hz
+    assert "Excess concentrated above 200 Hz" in texts
+    assert json_module.loads(json_text(record_to_json(record)))["calibrated"] is True

@@ -133,3 +133,17 @@ def test_reference_line_checked():
     for args in (("", "night_laeq", 30.0), ("x", "daily", 30.0), ("x", "night_laeq", math.nan)):
         with pytest.raises(InputError):
             reference_line(*args)
+
+
+def test_edited_source_says_so_and_is_checked():
+    from fieldtl.noise.wall import edited_source
+
+    music = DEFAULT_SOURCES[0]
+    assert edited_source(music, music.levels_db.values) is music
+    louder = edited_source(music, tuple(v + 6.0 for v in music.levels_db.values))
+    assert louder.origin.startswith("edited by the user from: invented")
+    result = compare_with_wall(louder, _flat(30.0, "L2"), separation=_flat(50.0, "DnT"))
+    assert result.expected_db[0] == pytest.approx(music.levels_db.at(100.0) + 6.0 - 50.0)
+    for bad in (math.nan, 141.0, -21.0):
+        with pytest.raises(InputError, match="100 Hz|50 Hz"):
+            edited_source(music, (bad,) + music.levels_db.values[1:])

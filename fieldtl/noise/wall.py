@@ -193,3 +193,19 @@ def read_separation_csv(text: str, *, source_name: str) -> tuple[BandSpectrum, B
     if "T" not in columns:
         return separation, None
     return separation, BandSpectrum.from_array(bands, times, "s", "T")
+
+
+def edited_source(source: SourceSpectrum, levels_db: tuple[float, ...], *, name: str | None = None) -> SourceSpectrum:
+    """``source`` with the user's band levels (same bands); its origin says so when they changed."""
+    if len(levels_db) != len(source.levels_db.nominal_hz):
+        raise InputError(f"{source.name}: {len(levels_db)} levels for {len(source.levels_db.nominal_hz)} bands")
+    low, high = (-60.0, 60.0) if source.kind == "impact" else (-20.0, 140.0)
+    for frequency_hz, value in zip(source.levels_db.nominal_hz, levels_db):
+        if not (isinstance(value, (int, float)) and math.isfinite(value) and low <= value <= high):
+            raise InputError(f"{source.name}: the level at {frequency_hz:g} Hz must be {low:g} to {high:g} dB")
+    levels = tuple(float(v) for v in levels_db)
+    if levels == source.levels_db.values and name is None:
+        return source
+    origin = (f"entered by the user" if name is not None else f"edited by the user from: {source.origin}")
+    return SourceSpectrum(name or source.name, source.kind,
+                          BandSpectrum(source.levels_db.nominal_hz, levels, "dB", source.levels_db.quantity), origin)

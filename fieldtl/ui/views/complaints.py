@@ -193,6 +193,12 @@ with common.fenced():
                     names = [s.name for s in DEFAULT_SOURCES if (s.kind == "airborne") == airborne]
                     name = st.selectbox("Typical source next door (invented spectra)", names, key=f"src-{period.id}")
                     source = next(s for s in DEFAULT_SOURCES if s.name == name)
+                    from fieldtl.noise.wall import edited_source
+                    edited = st.data_editor({"Hz": list(source.levels_db.nominal_hz),
+                                             "dB": list(source.levels_db.values)}, disabled=["Hz"],
+                                            hide_index=True, key=f"spectrum-{period.id}-{name}")
+                    source = edited_source(source, tuple(edited["dB"]))
+                    st.caption(f"Source spectrum: {source.origin}")
                     wall = (compare_with_wall(source, events_spectrum(record), separation=separation,
                                               reverberation_time_s=result.reverberation_time_s),)
                     st.dataframe({"Hz": wall[0].nominal_hz, "expected dB": wall[0].expected_db,
