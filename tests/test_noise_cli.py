@@ -137,3 +137,20 @@ def test_local_limits(files, capsys):
     assert "Upper 89.1 dB: 0 of 2 events above" in printed
     assert main(["record", str(first), "--limit", "no level here"]) == 2
     assert "write it as NAME:WHAT:DB" in capsys.readouterr().err
+
+
+def test_own_source_spectrum(files):
+    folder, first, second, _ = files
+    t_s = np.arange(5 * RATE_HZ) / RATE_HZ
+    calibration = write_wav(folder / "cal.wav", amplitude(-20.0) * np.sin(2 * np.pi * 1000.0 * t_s),
+                            sample_rate_hz=RATE_HZ)
+    (folder / "dnt.csv").write_text("Hz,DnT\n500,50\n1000,55\n", encoding="utf-8")
+    (folder / "hifi.csv").write_text("Hz;dB\n500;80,5\n1000;82\n", encoding="utf-8")
+    assert main(["record", str(first), str(second), "--calibration", str(calibration), "--separation",
+                 str(folder / "dnt.csv"), "--source-spectrum", str(folder / "hifi.csv"),
+                 "--json", str(folder / "r.json")]) == 0
+    (wall,) = json.loads((folder / "r.json").read_text(encoding="utf-8"))["wall"]
+    # ISO 16283-1 with T = T0: L2 = L1 - DnT
+    assert (wall["source"], wall["source_origin"]) == ("hifi.csv", "entered by the user")
+    assert wall["expected_db"] == pytest.approx([80.5 - 50.0, 82.0 - 55.0])
+    assert main(["record", str(first), "--source-spectrum", str(folder / "hifi.csv")]) == 2

@@ -41,6 +41,8 @@ def add_record_options(sub: argparse._SubParsersAction) -> argparse.ArgumentPars
                              "e.g. 'Local night limit:night_laeq:35'; repeat for more")
     record.add_argument("--separation", type=Path, metavar="TEST.csv",
                         help="a separation test (columns Hz, DnT or L'nT, optional T) to compare the events with")
+    record.add_argument("--source-spectrum", type=Path, metavar="SOURCE.csv",
+                        help="your own source spectrum for --separation (columns Hz, dB) instead of the invented ones")
     record.add_argument("--json", type=Path, metavar="OUT", help="write the record as JSON")
     record.add_argument("--csv", type=Path, metavar="OUT.csv",
                         help="write intervals as CSV (and the events beside it as OUT-events.csv)")
@@ -59,7 +61,7 @@ def run_record(args: argparse.Namespace, *, progress_bar: Callable[[], AbstractC
 
     if len(args.files) > MAX_FILES:
         raise InputError(f"record: at most {MAX_FILES} files, got {len(args.files)}")
-    for path in args.files + [p for p in (args.diary, args.separation) if p is not None]:
+    for path in args.files + [p for p in (args.diary, args.separation, args.source_spectrum) if p is not None]:
         if not path.is_file():
             raise InputError(f"{file_label(path)}: file not found")
     channel = int(number(args.channel, "--channel", low=CHANNEL[0], high=CHANNEL[1], integer=True)) - 1
@@ -88,6 +90,14 @@ def run_record(args: argparse.Namespace, *, progress_bar: Callable[[], AbstractC
         from fieldtl.noise.wall import read_separation_csv
         separation = read_separation_csv(read_text_file(args.separation, what="separation test"),
                                          source_name=file_label(args.separation))
+        if args.source_spectrum is not None:
+            from fieldtl.noise.wall import read_source_csv
+            kind = "impact" if separation[0].quantity == "L'nT" else "airborne"
+            own = read_source_csv(read_text_file(args.source_spectrum, what="source spectrum"),
+                                  name=file_label(args.source_spectrum), kind=kind)
+            separation = (*separation, own)
+    elif args.source_spectrum is not None:
+        raise InputError("--source-spectrum is compared through a separation test: give --separation too")
     print(f"CAUTION: {NOISE_RECORD_CAUTION}\nCAUTION: {INDICATIVE_CAUTION}")
     if args.keep_clips is not None:
         print(f"CAUTION: {RECORDING_CAUTION}")
@@ -169,15 +179,16 @@ def _wall(record, separation) -> tuple:
         return ()
     from fieldtl.noise.wall import DEFAULT_SOURCES, compare_with_wall, events_spectrum
 
-    test, room_t = separation
+    test, room_t, *own = separation
     try:
         recorded = events_spectrum(record)
     except InputError as exc:
         print(f"link to the separating element: not made ({exc})")
         return ()
     kind = "impact" if test.quantity == "L'nT" else "airborne"
+    sources = own or [source for source in DEFAULT_SOURCES if source.kind == kind]
     return tuple(compare_with_wall(source, recorded, separation=test, reverberation_time_s=room_t)
-                 for source in DEFAULT_SOURCES if source.kind == kind)
+                 for source in sources)
 
 
 def _print_summary(record, diary, references, unit: str) -> None:

@@ -209,3 +209,31 @@ def edited_source(source: SourceSpectrum, levels_db: tuple[float, ...], *, name:
     origin = (f"entered by the user" if name is not None else f"edited by the user from: {source.origin}")
     return SourceSpectrum(name or source.name, source.kind,
                           BandSpectrum(source.levels_db.nominal_hz, levels, "dB", source.levels_db.quantity), origin)
+
+
+def read_source_csv(text: str, *, name: str, kind: str) -> SourceSpectrum:
+    """A user's source spectrum: columns ``Hz`` and ``dB`` (source-room levels; for an impact source
+    the levels relative to the tapping machine)."""
+    import csv
+    import io
+
+    lines = [line for line in text.splitlines() if line.strip()]
+    if len(lines) < 2:
+        raise InputError(f"{name}: needs a header row and at least one band")
+    delimiter = max((",", ";", "\t"), key=lines[0].count)
+    rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delimiter))
+    header = [cell.strip().lower() for cell in rows[0]]
+    if "hz" not in header or "db" not in header:
+        raise InputError(f"{name}: the first row must name the columns Hz and dB")
+    bands, levels = [], []
+    for number, row in enumerate(rows[1:], start=2):
+        cells = [c.strip().replace(",", ".") if delimiter != "," else c.strip() for c in row]   # decimal commas
+        try:
+            bands.append(float(cells[header.index("hz")]))
+            levels.append(float(cells[header.index("db")]))
+        except (ValueError, IndexError):
+            raise InputError(f"{name}: row {number} is not a band with a number") from None
+    if sorted(set(bands)) != bands or any(f not in nominal_bands_hz(20, 20000) for f in bands):
+        raise InputError(f"{name}: bands must be nominal one-third-octave frequencies, ascending")
+    start = SourceSpectrum(name, kind, BandSpectrum(tuple(bands), tuple(0.0 for _ in bands), "dB", "L1"), "")
+    return edited_source(start, tuple(levels), name=name)
