@@ -25,6 +25,7 @@ from fieldtl.errors import FieldTLError, InputError
 from fieldtl.validate import CALIBRATOR_DB, SWEEP_HZ, SWEEP_S, file_label
 
 EXIT_INTERNAL_ERROR = 70   # EX_SOFTWARE of sysexits.h: a bug of ours, not bad input
+EXIT_NO_RESULT = 1         # the input was readable but gave no result (findings say why)
 PROGRESS_MIN_S = 20.0   # show a progress bar for recordings at least this long, in a terminal
 
 
@@ -61,7 +62,7 @@ def _parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     bands = sub.add_parser("bands", help="band levels (Leq), LAeq, LCeq and maxima of one recording")
-    bands.add_argument("file", type=Path)
+    bands.add_argument("file", type=Path, metavar="REC.wav", help="the recording (WAV or FLAC)")
     bands.add_argument("--channel", type=int, default=1, help="channel to analyse, 1-based (default 1)")
     bands.add_argument("--calibration", type=Path, metavar="CAL.wav", help="recording of the calibrator tone")
     bands.add_argument("--calibrator-db", type=float, default=94.0, help="calibrator level in dB (default 94.0)")
@@ -70,7 +71,7 @@ def _parser() -> argparse.ArgumentParser:
     bands.set_defaults(run=_run_bands)
 
     decay = sub.add_parser("decay", help="reverberation times (T20, T30, EDT) of one decay recording")
-    decay.add_argument("file", type=Path)
+    decay.add_argument("file", type=Path, metavar="DECAY.wav", help="the decay recording (WAV or FLAC)")
     decay.add_argument("--method", required=True, choices=("impulse", "interrupted", "sweep"))
     decay.add_argument("--channel", type=int, default=1, help="channel to analyse, 1-based (default 1)")
     decay.add_argument("--octave", action="store_true", help="octave bands instead of one-third octaves")
@@ -81,7 +82,7 @@ def _parser() -> argparse.ArgumentParser:
     decay.set_defaults(run=_run_decay)
 
     assess = sub.add_parser("assess", help="field result, ratings, verdict and quality findings of a survey")
-    assess.add_argument("survey", type=Path, metavar="SURVEY.toml")
+    assess.add_argument("survey", type=Path, metavar="SURVEY.toml", help="the survey file naming the recordings")
     assess.add_argument("--json", type=Path, metavar="OUT.json", help="write the results as JSON")
     assess.add_argument("--csv", type=Path, metavar="OUT.csv", help="write the band table as CSV")
     assess.add_argument("--plot", type=Path, metavar="OUT.png", help="draw the measured and reference curves")
@@ -95,8 +96,8 @@ def _parser() -> argparse.ArgumentParser:
 
     signal_cmd = sub.add_parser("signal", help="write a test signal for the loudspeaker (pink, white, sweep)")
     signal_cmd.add_argument("kind", choices=("pink", "white", "sweep"))
-    signal_cmd.add_argument("out", type=Path, metavar="OUT.wav")
-    signal_cmd.add_argument("--seconds", type=float, default=30.0, help="length (default 30 s; sweep: 10 s)")
+    signal_cmd.add_argument("out", type=Path, metavar="OUT.wav", help="the WAV file to write")
+    signal_cmd.add_argument("--seconds", type=float, default=None, help="length (default 30 s; sweep: 10 s)")
     signal_cmd.add_argument("--level-dbfs", type=float, default=-18.0,
                             help="RMS level in dB re full scale (default -18; noise peaks ~13 dB higher)")
     signal_cmd.add_argument("--low-hz", type=float, default=40.0, help="lowest frequency (default 40 Hz)")
@@ -107,7 +108,8 @@ def _parser() -> argparse.ArgumentParser:
     signal_cmd.set_defaults(run=_run_signal)
 
     predict = sub.add_parser("predict", help="predicted sound reduction R of a declared wall or floor")
-    predict.add_argument("construction", type=Path, nargs="?", metavar="CONSTRUCTION.toml")
+    predict.add_argument("construction", type=Path, nargs="?", metavar="CONSTRUCTION.toml",
+                         help="a construction file (or give --layer)")
     predict.add_argument("--layer", action="append", default=[], metavar="MATERIAL:THICKNESS_MM",
                          help="a layer of a single leaf (repeat for layers bonded together)")
     predict.add_argument("--json", type=Path, metavar="OUT", help="write the prediction as JSON")
@@ -228,7 +230,8 @@ def _run_decay(args: argparse.Namespace) -> int:
             "averaging": analysis.averaging,
             "warnings": [f.as_json() for f in findings],
         })
-    return 0
+    # No band gave a T (e.g. no impulse in an impulse recording): the run failed, say so by the status.
+    return 0 if any(v is not None for spectrum in columns.values() for v in spectrum.values) else EXIT_NO_RESULT
 
 
 # --- a whole survey ----------------------------------------------------------------------------------
@@ -278,8 +281,13 @@ def _run_demo(args: argparse.Namespace) -> int:
         if out.exists() and not out.is_dir():
             raise InputError(f"{file_label(out)}: --out must be a folder, and this is a file")
         out.mkdir(parents=True, exist_ok=True)
-    return _assess_and_report(load_survey(survey_path), json_path=out / "demo.json" if out else None,
-                              csv_path=out / "demo.csv" if out else None, plot_path=out / "demo.png" if out else None)
+    written = [out / name for name in ("demo.json", "demo.csv", "demo.png")] if out else [None] * 3
+    status = _assess_and_report(load_survey(survey_path), json_path=written[0], csv_path=written[1],
+                                plot_path=written[2])
+    for path in written if out else ():
+        if path.is_file():
+            print(f"wrote {path}")
+    return status
 
 
 # --- construction prediction ------------------------------------------------------------------------
@@ -384,7 +392,7 @@ def _run_signal(args: argparse.Namespace) -> int:
     option_number(args.level_dbfs, "--level-dbfs", LEVEL_DBFS, " dB re full scale")
     print(f"CAUTION: {HEARING_CAUTION}")
     if args.kind == "sweep":
-        duration_s = 10.0 if args.seconds == 30.0 else args.seconds
+        duration_s = 10.0 if args.seconds is None else args.seconds      # an explicit 30 s is 30 s
         # Default fades, exactly as fieldtl.measure.sweep_from_spec rebuilds the sweep for deconvolution.
         spec = SweepSpec(duration_s=duration_s, sample_rate_hz=args.sample_rate_hz, low_hz=args.low_hz,
                          high_hz=args.high_hz, level_dbfs=args.level_dbfs)
@@ -394,6 +402,7 @@ def _run_signal(args: argparse.Namespace) -> int:
               f"--sweep-stop-hz {spec.high_hz:g} --sweep-length-s {spec.duration_s:g}")
     else:
         make = pink_noise if args.kind == "pink" else white_noise
+        args.seconds = 30.0 if args.seconds is None else args.seconds
         samples = make(args.seconds, sample_rate_hz=args.sample_rate_hz, level_dbfs=args.level_dbfs,
                        low_hz=args.low_hz, high_hz=args.high_hz, fade_in_s=args.fade_s, fade_out_s=args.fade_s,
                        seed=args.seed)
