@@ -295,6 +295,7 @@ def _run_demo(args: argparse.Namespace) -> int:
 def _run_predict(args: argparse.Namespace) -> int:
     from fieldtl.construction import construction_from_layers, load_construction, prediction_to_json
     from fieldtl.construction.predict import predict
+    from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK, marked
 
     if (args.construction is None) == (not args.layer):
         raise InputError("predict: give either a construction file or one or more --layer MATERIAL:THICKNESS_MM")
@@ -313,10 +314,13 @@ def _run_predict(args: argparse.Namespace) -> int:
     terms = rating.adaptation_terms_db
     print(f"Rw {rating.single_number_db} dB (C {terms['C']:+d}; Ctr {terms['Ctr']:+d})"
           + ("  — an upper bound: see the notes" if prediction.upper_bound else ""))
-    for note in prediction.notes:
+    notes = [marked(note) for note in prediction.notes]       # no internal notes for the user
+    for note in notes:
         print(f"note: {note}")
+    if any(note.endswith(UNCONFIRMED_MARK) for note in notes):
+        print(EXPLANATION)
     if args.json:
-        _write_json(args.json, prediction_to_json(prediction))
+        _write_json(args.json, {**prediction_to_json(prediction), "notes": notes})
     return 0
 
 

@@ -165,6 +165,17 @@ def test_predict_inline_layer_json(tmp_path, capsys):
     assert document["ratings"]["Rw"]["value"] == 56 and len(document["R_db"]) == 21
 
 
+def test_predict_prints_no_internal_notes(tmp_path, capsys):
+    # The edge-loss note of Sharp's method carries a developer's mark in the code; a user sees the
+    # value marked and the mark explained once, in the terminal and in the JSON alike.
+    code, out, _ = _run(capsys, "predict", "--layer", "concrete_dense:200", "--json", tmp_path / "p.json")
+    notes = json.loads((tmp_path / "p.json").read_text())["notes"]
+    assert code == 0 and any("edge-loss" in note for note in notes)
+    for text in [out, *notes]:
+        assert "from memory" not in text.lower() and "facts sheet" not in text.lower()
+    assert out.count("check against your copy of the standard") == 1
+
+
 @pytest.mark.parametrize("argv, needle", [
     (["predict"], "give either a construction file or one or more --layer"),
     (["predict", "--layer", "unobtainium:10"], "unknown material 'unobtainium'"),
