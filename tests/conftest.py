@@ -69,3 +69,18 @@ def own_data_dir(monkeypatch, tmp_path_factory):
     """Each test its own fieldtl data folder: `fieldtl assess` keeps take measurements in the user's
     store, and no test may read what another measured, nor write to the real user's folder."""
     monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path_factory.mktemp("fieldtl-data")))
+
+
+@pytest.fixture
+def data_dir(tmp_path, monkeypatch):
+    """A fresh store folder for an AppTest run, with Streamlit's caches cleared before and after
+    (the app keeps its store handle in st.cache_resource), and no access code set."""
+    import streamlit as st
+
+    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "store"))
+    monkeypatch.delenv("FIELDTL_ACCESS_CODE", raising=False)
+    st.cache_resource.clear()
+    st.cache_data.clear()
+    yield tmp_path / "store"
+    st.cache_resource.clear()
+    st.cache_data.clear()

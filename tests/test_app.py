@@ -4,7 +4,6 @@ from pathlib import Path
 
 import make_data
 import pytest
-import streamlit as st
 from streamlit.testing.v1 import AppTest
 
 from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, BandSpectrum
@@ -12,17 +11,6 @@ from fieldtl.store import Store, TestSetup
 
 APP = str(Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "app.py")
 BANDS = THIRD_OCTAVES_50_5000_HZ
-
-
-@pytest.fixture
-def data_dir(tmp_path, monkeypatch):
-    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "store"))
-    monkeypatch.delenv("FIELDTL_ACCESS_CODE", raising=False)
-    st.cache_resource.clear()
-    st.cache_data.clear()
-    yield tmp_path / "store"
-    st.cache_resource.clear()
-    st.cache_data.clear()
 
 
 def _app() -> AppTest:

@@ -6,7 +6,6 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-import streamlit as st
 from noise_night import amplitude, write_wav
 from streamlit.testing.v1 import AppTest
 
@@ -17,15 +16,9 @@ RATE_HZ = 44_100
 
 
 @pytest.fixture
-def data_dir(tmp_path, monkeypatch):
-    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "store"))
+def data_dir(data_dir, monkeypatch):
     monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
-    monkeypatch.delenv("FIELDTL_ACCESS_CODE", raising=False)
-    st.cache_resource.clear()
-    st.cache_data.clear()
-    yield tmp_path / "store"
-    st.cache_resource.clear()
-    st.cache_data.clear()
+    return data_dir
 
 
 def _button(at, text):

@@ -8,7 +8,6 @@ import re
 from pathlib import Path
 
 import pytest
-import streamlit as st
 from streamlit.testing.v1 import AppTest
 
 from fieldtl.store import Store, TestSetup
@@ -18,17 +17,6 @@ APP = str(REPO / "fieldtl" / "ui" / "app.py")
 DEMO = REPO / "sample_audio"
 CODE = "k7m2-q9tx-4hvw"
 STORAGE_NAME = re.compile(r"[0-9a-f]{64}")
-
-
-@pytest.fixture
-def data_dir(tmp_path, monkeypatch):
-    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "store"))
-    monkeypatch.delenv("FIELDTL_ACCESS_CODE", raising=False)
-    st.cache_resource.clear()
-    st.cache_data.clear()
-    yield tmp_path / "store"
-    st.cache_resource.clear()
-    st.cache_data.clear()
 
 
 @pytest.fixture
