@@ -11,6 +11,8 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Literal
 
+import numpy as np
+
 from fieldtl.bands import BandSpectrum
 from fieldtl.cautions import CAUTIONS
 from fieldtl.construction import Comparison, compare_with_measurement
@@ -26,6 +28,7 @@ from fieldtl.qa import (TakeSummary, check_against_lab_rating, check_astm_scope,
                         check_source_spectrum, check_spatial_spread, check_stationarity)
 from fieldtl.rating import Rating, rate_e413, rate_e989, rate_iso717_1, rate_iso717_2
 from fieldtl.survey import Geometry, Survey
+from fieldtl.units import energetic_mean_db
 from fieldtl.validate import VERDICT_BLOCKING_CODES
 from fieldtl.iso12999 import SITUATIONS, band_uncertainty_db, single_number_uncertainty
 from fieldtl.uncertainty import (CombinedUncertainty, Verdict, band_standard_error_db, decide,
@@ -191,6 +194,30 @@ def _octave_63(takes: Sequence[TakeSummary]) -> tuple[float, ...]:
                  and t.octave_63_reverberation_time_s is not None)
 
 
+def _corner_backgrounds(takes: Sequence[TakeSummary], speakers: Sequence[int]) -> tuple[BandSpectrum, ...]:
+    """Background at each receiving-room corner, in corner order, or () to use the room's average.
+
+    Corner k is the k-th receiving_corner take of each source position; its background is the
+    background_corner take numbered k (energy mean if several). ISO 16283-1/-2 low-frequency
+    procedure (as transcribed): each corner is corrected by its own background. When positions have
+    different corner counts or a corner used has no background, () is returned and every corner is
+    corrected by the room's average (finding corner_background_missing).
+    """
+    counts = {len(_levels(takes, "receiving_corner", s)) for s in speakers}
+    if len(counts) != 1 or 0 in counts:
+        return ()
+    by_corner = [_levels(takes, "background_corner", k) for k in range(1, counts.pop() + 1)]
+    if not all(by_corner):
+        return ()
+    return tuple(found[0] if len(found) == 1 else _energy_mean(found) for found in by_corner)
+
+
+def _energy_mean(spectra: Sequence[BandSpectrum]) -> BandSpectrum:
+    bands = spectra[0].nominal_hz
+    return BandSpectrum.from_array(bands, energetic_mean_db(np.vstack([s.select(bands).as_array() for s in spectra])),
+                                   "dB", spectra[0].quantity)
+
+
 def _speakers(takes: Sequence[TakeSummary], role: str) -> list[int]:
     return sorted({t.speaker for t in takes if t.role == role and t.level_db is not None})
 
@@ -209,6 +236,7 @@ def _airborne(survey: Survey, takes: Sequence[TakeSummary], backgrounds: tuple[B
                       for s in speakers)
     geometry = survey.geometry
     measurement = AirborneMeasurement(positions=positions, background_levels_db=backgrounds,
+                                      background_corner_levels_db=_corner_backgrounds(takes, speakers),
                                       reverberation_times_s=decays, octave_63_reverberation_times_s=_octave_63(takes))
     rooms = Rooms(source_volume_m3=geometry.source_volume_m3 or geometry.receiving_volume_m3,
                   receiving_volume_m3=geometry.receiving_volume_m3, common_area_m2=geometry.separating_area_m2)
@@ -218,10 +246,12 @@ def _airborne(survey: Survey, takes: Sequence[TakeSummary], backgrounds: tuple[B
 
 def _impact(survey: Survey, takes: Sequence[TakeSummary], backgrounds: tuple[BandSpectrum, ...],
             decays: tuple[BandSpectrum, ...]) -> ImpactResult:
+    speakers = _speakers(takes, "impact")
     positions = tuple(TappingPosition(receiving_levels_db=_levels(takes, "impact", s),
                                       receiving_corner_levels_db=_levels(takes, "receiving_corner", s))
-                      for s in _speakers(takes, "impact"))
+                      for s in speakers)
     measurement = ImpactMeasurement(positions=positions, background_levels_db=backgrounds,
+                                    background_corner_levels_db=_corner_backgrounds(takes, speakers),
                                     reverberation_times_s=decays, octave_63_reverberation_times_s=_octave_63(takes))
     return impact_insulation(measurement, receiving_volume_m3=survey.geometry.receiving_volume_m3)
 

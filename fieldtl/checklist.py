@@ -77,6 +77,12 @@ def checklist(*, test_type: str, receiving_volume_m3: float, source_volume_m3: f
                     f"{MIN_CORNER_S:.0f} s each{background})", count(role, speaker), MIN_CORNERS, role, speaker))
     items.append(ChecklistItem("Background noise in the receiving room", count("background"),
                                MIN_BACKGROUND_TAKES, "background"))
+    if low_frequency_applies(receiving_volume_m3):   # background in every corner used (ISO 16283-1/-2 LF)
+        per_position = [count("receiving_corner", s) for s in speakers]
+        for corner in range(1, max([MIN_CORNERS, *per_position]) + 1):
+            items.append(ChecklistItem(f"Background noise in receiving-room corner {corner} (source off)",
+                                       count("background_corner", corner), MIN_BACKGROUND_TAKES,
+                                       "background_corner", corner))
     items.append(ChecklistItem("Reverberation decays in the receiving room", count("decay"), MIN_DECAYS, "decay"))
     if calibration_expected and not band_levels_pasted:
         items.append(ChecklistItem("Calibration check at the end", count("calibration_after"), 1,

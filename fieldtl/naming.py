@@ -7,7 +7,8 @@ file it read. :func:`take_names` gives each stored file a name a tester knows
 appeared, so no storage name reaches a page, a CSV, a JSON or a PDF.
 
 Microphone positions are counted per role and loudspeaker (or tapping-machine) position in the
-order the takes were added; background and calibrator takes carry no loudspeaker position.
+order the takes were added; background and calibrator takes carry no loudspeaker position, and a
+corner's background carries its corner number instead.
 """
 
 from __future__ import annotations
@@ -26,7 +27,8 @@ UNKNOWN_TAKE = "a stored take"
 
 _ROOM = {"source": "source room", "receiving": "receiving room", "impact": "receiving room",
          "source_corner": "source room corner", "receiving_corner": "receiving room corner",
-         "decay": "decay in the receiving room", "background": "background noise in the receiving room"}
+         "decay": "decay in the receiving room", "background": "background noise in the receiving room",
+         "background_corner": "background noise in receiving room corner"}
 _CALIBRATOR = {"calibration": "calibrator tone at the start", "calibration_after": "calibrator tone at the end"}
 NO_SOURCE_POSITION = ("background", "calibration", "calibration_after")
 
@@ -45,6 +47,8 @@ def position_words(role: str, speaker: int, microphone: int, *, test_type: str) 
     """"receiving room, loudspeaker 2, microphone 3"; "background noise in the receiving room, microphone 1"."""
     if role in _CALIBRATOR:
         return _CALIBRATOR[role]
+    if role == "background_corner":    # its position is the corner number; no loudspeaker
+        return f"{_ROOM[role]} {speaker}" + (f", take {microphone}" if microphone > 1 else "")
     source = "tapping machine" if test_type == "impact" else "loudspeaker"
     point = "corner" if role.endswith("corner") else "microphone"
     parts = [_ROOM.get(role, role.replace("_", " "))]

@@ -22,9 +22,16 @@ Survey file, paths relative to the file::
     [[recording]]
     file = "src_s1_p1.wav"
     role = "source"                   # see ROLES
-    speaker = 1                       # loudspeaker or tapping-machine position
+    speaker = 1                       # loudspeaker or tapping-machine position; for
+                                      # "background_corner" the corner number instead
     method = "impulse"                # decay only: "impulse" | "interrupted" | "sweep"
     channel = 1                       # optional, 1-based
+
+Role ``background_corner`` (small receiving rooms): the background noise at one low-frequency
+corner with the source off. Its ``speaker`` is the corner number k, with no loudspeaker: corner k
+is the k-th ``receiving_corner`` recording of every loudspeaker (or tapping) position, in file
+order, so each corner level is corrected by the background measured in that corner (ISO 16283-1/-2
+low-frequency procedure, as transcribed).
 
 Every problem raises InputError with one line naming the file and what is wrong.
 """
@@ -50,17 +57,23 @@ from fieldtl.validate import (AREA_M2, CALIBRATOR_DB, CHANNEL, LAB_RATING_DB, LE
                               check_keys, echo, file_label)
 
 TestType = Literal["airborne", "impact"]
-Role = Literal["source", "receiving", "background", "decay", "source_corner", "receiving_corner", "impact"]
-ROLES: tuple[str, ...] = ("source", "receiving", "background", "decay", "source_corner", "receiving_corner", "impact")
+Role = Literal["source", "receiving", "background", "decay", "source_corner", "receiving_corner", "impact",
+               "background_corner"]
+ROLES: tuple[str, ...] = ("source", "receiving", "background", "decay", "source_corner", "receiving_corner", "impact",
+                          "background_corner")
 DECAY_METHODS: tuple[str, ...] = ("impulse", "interrupted", "sweep")
 REQUIRED_ROLES: dict[str, tuple[str, ...]] = {
     "airborne": ("source", "receiving", "background", "decay"),
     "impact": ("impact", "background", "decay"),
 }
 ROLES_BY_TYPE: dict[str, tuple[str, ...]] = {
-    "airborne": ("source", "receiving", "background", "decay", "source_corner", "receiving_corner"),
-    "impact": ("impact", "background", "decay", "receiving_corner"),
+    "airborne": ("source", "receiving", "background", "decay", "source_corner", "receiving_corner",
+                 "background_corner"),
+    "impact": ("impact", "background", "decay", "receiving_corner", "background_corner"),
 }
+# Roles a store take may have: the store's table has no background_corner yet (it needs a migration)
+STORED_ROLES_BY_TYPE: dict[str, tuple[str, ...]] = {
+    kind: tuple(r for r in roles if r != "background_corner") for kind, roles in ROLES_BY_TYPE.items()}
 
 _TEST_KEYS = {"title", "type", "separating_area_m2", "receiving_volume_m3", "source_volume_m3",
               "requirement", "band_levels", "construction", "uncertainty_situation",

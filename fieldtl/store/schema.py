@@ -17,7 +17,7 @@ from typing import Any
 
 from fieldtl import validate
 from fieldtl.errors import InputError, StoreError
-from fieldtl.survey import DECAY_METHODS, ROLES_BY_TYPE, Geometry
+from fieldtl.survey import DECAY_METHODS, STORED_ROLES_BY_TYPE, Geometry
 from fieldtl.uncertainty import parse_requirement
 from fieldtl.validate import CALIBRATOR_DB, CHANNEL, LAB_RATING_DB, POSITION, SWEEP_HZ, SWEEP_S, echo
 
@@ -37,7 +37,7 @@ REPORT_DETAIL_CHARS: dict[str, int] = {"organisation": validate.NAME_CHARS, "eng
 
 def take_roles(test_type: str) -> tuple[str, ...]:
     """Roles a take of this test type may have: the survey roles plus the calibrator checks."""
-    return ROLES_BY_TYPE[test_type] + CALIBRATION_ROLES
+    return STORED_ROLES_BY_TYPE[test_type] + CALIBRATION_ROLES
 
 
 def utc_now() -> str:

@@ -76,6 +76,7 @@ ROLE_NAMES: dict[str, str] = {
     "decay": "Reverberation decay (receiving room)",
     "source_corner": "Source room corner (small room)",
     "receiving_corner": "Receiving room corner (small room)",
+    "background_corner": "Background noise in a receiving room corner (small room, source off)",
     "calibration": "Calibrator tone (start)",
     "calibration_after": "Calibrator tone (end)",
 }
