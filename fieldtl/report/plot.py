@@ -1,7 +1,8 @@
 """Chart of a measured curve against its shifted reference curve (matplotlib, no pyplot state).
 
 Unfavourable deviations are shaded; bands limited by background noise are drawn as bounds
-(an arrow pointing the way the true value may lie). A figure's size never depends on its title:
+(an arrow pointing the way the true value may lie); error bars show ± the per-band standard
+uncertainty of ISO 12999-1:2020 Table 2 (airborne) or Table 4 (impact) for the situation used. A figure's size never depends on its title:
 a user's title is one line, cut with "…" to the figure's width (see :func:`fitted_title`), so
 even a tight bounding box (Streamlit's st.pyplot) stays the same size.
 """
@@ -11,6 +12,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
@@ -24,15 +26,26 @@ from fieldtl.validate import file_label
 MEASURED_COLOUR = "#1b4f72"
 REFERENCE_COLOUR = "#7d7d7d"
 DEVIATION_COLOUR = "#e67e22"
+UNCERTAINTY_COLOUR = "#5d8aa8"
 FIGURE_SIZE_IN = (7.0, 4.2)
 FIGURE_DPI = 110
 TITLE_FONT_SIZE = 10
 TITLE_WIDTH_FRACTION = 0.9         # of the figure's width, left for a title line
 
 
+def band_uncertainty_source(test_type: str, situation: str) -> str:
+    """The ISO 12999-1 table giving per-band uncertainties for this kind of test, and the situation."""
+    return f"ISO 12999-1:2020 Table {2 if test_type == 'airborne' else 4}, situation {situation}"
+
+
 def rating_figure(spectrum: BandSpectrum, rating: Rating, *, limited: tuple[bool, ...] = (),
-                  title: str = "") -> Figure:
-    """Measured band values, the shifted reference curve and the unfavourable deviations."""
+                  title: str = "", band_uncertainty: BandSpectrum | None = None,
+                  uncertainty_source: str = "") -> Figure:
+    """Measured band values, the shifted reference curve and the unfavourable deviations.
+
+    ``band_uncertainty`` (standard uncertainty per band, dB) adds error bars of ± u (k = 1) at the
+    bands it shares with ``spectrum``; ``uncertainty_source`` names its table in the legend.
+    """
     figure = Figure(figsize=FIGURE_SIZE_IN, dpi=FIGURE_DPI, layout="constrained")
     axes = figure.add_subplot()
     bands = spectrum.nominal_hz
@@ -50,6 +63,8 @@ def rating_figure(spectrum: BandSpectrum, rating: Rating, *, limited: tuple[bool
     high = np.maximum(measured_at_ref, ref_values)
     axes.fill_between(ref_x, low, high, where=deviation, color=DEVIATION_COLOUR, alpha=0.35, step=None,
                       interpolate=True, label=f"unfavourable deviation (sum {rating.deviation_sum_db:.1f} dB)")
+    if band_uncertainty is not None:
+        _uncertainty_bars(axes, bands, values, band_uncertainty, uncertainty_source)
     if limited and any(limited):
         direction = "^" if rating.standard in ("ISO 717-1", "ASTM E413") else "v"
         marked = np.array(limited, dtype=bool)
@@ -75,7 +90,22 @@ def assessment_figure(assessment: Assessment, *, descriptor: str | None = None) 
     wanted = descriptor or (assessment.verdict.requirement.descriptor if assessment.verdict else None)
     index = next((i for i, r in enumerate(assessment.ratings) if r.descriptor == wanted), 0)
     return rating_figure(assessment.rated_spectra[index], assessment.ratings[index],
-                         limited=assessment.result.limited, title=assessment.title)
+                         limited=assessment.result.limited, title=assessment.title,
+                         band_uncertainty=assessment.band_uncertainty_db,
+                         uncertainty_source=band_uncertainty_source(assessment.test_type,
+                                                                    assessment.uncertainty_situation))
+
+
+def _uncertainty_bars(axes: Axes, bands: tuple[float, ...], values: np.ndarray, band_u: BandSpectrum, source: str) -> None:
+    """Error bars of ± u at every band with both a measured value and a table value."""
+    u_by_band = dict(zip(band_u.nominal_hz, band_u.values))
+    u_db = np.array([np.nan if u_by_band.get(f) is None else u_by_band[f] for f in bands], dtype=float)
+    shown = np.isfinite(u_db) & np.isfinite(values)
+    if not shown.any():
+        return
+    label = "± u per band (standard uncertainty, k = 1)" + (f": {source}" if source else "")
+    axes.errorbar(np.arange(len(bands))[shown], values[shown], yerr=u_db[shown], fmt="none",
+                  ecolor=UNCERTAINTY_COLOUR, elinewidth=1.0, capsize=2.5, zorder=1, label=label)
 
 
 def save_assessment_plot(assessment: Assessment, path: str | Path, *, descriptor: str | None = None) -> Path:
