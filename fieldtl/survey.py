@@ -71,9 +71,6 @@ ROLES_BY_TYPE: dict[str, tuple[str, ...]] = {
                  "background_corner"),
     "impact": ("impact", "background", "decay", "receiving_corner", "background_corner"),
 }
-# Roles a store take may have: the store's table has no background_corner yet (it needs a migration)
-STORED_ROLES_BY_TYPE: dict[str, tuple[str, ...]] = {
-    kind: tuple(r for r in roles if r != "background_corner") for kind, roles in ROLES_BY_TYPE.items()}
 
 _TEST_KEYS = {"title", "type", "separating_area_m2", "receiving_volume_m3", "source_volume_m3",
               "requirement", "band_levels", "construction", "uncertainty_situation",

@@ -10,16 +10,21 @@ no correction, 6 < margin < 10 dB L = 10 lg(10^(Lsb/10) - 10^(Lb/10)), margin <=
 
 from __future__ import annotations
 
+import io
 import math
 
 import numpy as np
 import pytest
+import soundfile
 
 from fieldtl.assess import assess
 from fieldtl.bands import BandSpectrum
 from fieldtl.checklist import TakeCount, checklist
 from fieldtl.measure import measure_survey
 from fieldtl.naming import position_words
+from fieldtl.store import MIGRATIONS, Store, TestSetup
+from fieldtl.errors import StoreError
+from fieldtl.store import schema
 from fieldtl.survey import load_survey
 import make_data
 
@@ -118,3 +123,24 @@ def test_corner_background_lines_only_in_a_room_under_25_m3():
 def test_a_corner_background_is_named_by_its_corner():
     assert position_words("background_corner", 2, 1, test_type="airborne") == \
         "background noise in receiving room corner 2"
+
+
+def test_an_older_store_keeps_its_takes_and_accepts_a_corner_background(tmp_path, monkeypatch):
+    buffer = io.BytesIO()
+    soundfile.write(buffer, make_data.sine(1000.0, amplitude=0.5, duration_s=0.25), make_data.SAMPLE_RATE_HZ,
+                    format="WAV")
+    setup = TestSetup(title="Invented small room", test_type="airborne", receiving_volume_m3=20.0)
+    database = tmp_path / "fieldtl.sqlite3"
+    monkeypatch.setattr(schema, "MIGRATIONS", MIGRATIONS[:3])           # a store made before the role
+    with Store.open(database) as old:
+        test_id = old.create_test(old.create_project("Kept").id, setup).id
+        kept = old.add_take(test_id, data=buffer.getvalue(), original_name="c1.wav", role="receiving_corner")
+        with pytest.raises(StoreError, match="CHECK constraint"):    # the old table refuses the role
+            old.add_take(test_id, data=buffer.getvalue(), original_name="b.wav", role="background_corner")
+    monkeypatch.setattr(schema, "MIGRATIONS", MIGRATIONS)
+    with Store.open(database) as upgraded:
+        assert "m0004_background_corner_role" in upgraded.applied_migrations
+        added = upgraded.add_take(test_id, data=buffer.getvalue(), original_name="b2.wav",
+                                  role="background_corner", speaker=2)
+        assert [(t.id, t.role, t.speaker) for t in upgraded.list_takes(test_id)] == \
+            [(kept.id, "receiving_corner", 1), (added.id, "background_corner", 2)]

@@ -14,6 +14,8 @@ statement made it, in the same transaction. Both kinds are recorded in ``schema_
 
 from __future__ import annotations
 
+from fieldtl.store.schema import STORED_ROLE_LIST
+
 SHARED_BODIES: dict[str, tuple[str, ...]] = {
     "m0001_create_tables": (
         """CREATE TABLE projects (
@@ -96,6 +98,10 @@ SHARED_BODIES: dict[str, tuple[str, ...]] = {
             keep_clips INTEGER NOT NULL CHECK (keep_clips IN (0, 1)),
             created_at TEXT NOT NULL)""",
         "CREATE INDEX complaint_periods_complaint ON complaint_periods(complaint_id)",
+    ),
+    "m0004_background_corner_role": (
+        "ALTER TABLE takes DROP CONSTRAINT takes_role_check",
+        f"ALTER TABLE takes ADD CONSTRAINT takes_role_check CHECK (role IN ({STORED_ROLE_LIST}))",
     ),
 }
 

@@ -17,7 +17,7 @@ from typing import Any
 
 from fieldtl import validate
 from fieldtl.errors import InputError, StoreError
-from fieldtl.survey import DECAY_METHODS, STORED_ROLES_BY_TYPE, Geometry
+from fieldtl.survey import DECAY_METHODS, ROLES_BY_TYPE, Geometry
 from fieldtl.uncertainty import parse_requirement
 from fieldtl.validate import CALIBRATOR_DB, CHANNEL, LAB_RATING_DB, POSITION, SWEEP_HZ, SWEEP_S, echo
 
@@ -37,7 +37,7 @@ REPORT_DETAIL_CHARS: dict[str, int] = {"organisation": validate.NAME_CHARS, "eng
 
 def take_roles(test_type: str) -> tuple[str, ...]:
     """Roles a take of this test type may have: the survey roles plus the calibrator checks."""
-    return STORED_ROLES_BY_TYPE[test_type] + CALIBRATION_ROLES
+    return ROLES_BY_TYPE[test_type] + CALIBRATION_ROLES
 
 
 def utc_now() -> str:
@@ -329,7 +329,45 @@ def m0003_complaints(connection: sqlite3.Connection) -> None:
     connection.execute("CREATE INDEX complaint_periods_complaint ON complaint_periods(complaint_id)")
 
 
-MIGRATIONS: tuple[Migration, ...] = (m0001_create_tables, m0002_take_measurements, m0003_complaints)
+def m0004_background_corner_role(connection: sqlite3.Connection) -> None:
+    """Takes may have the role background_corner (the background at one low-frequency corner).
+
+    SQLite cannot change a CHECK constraint, so the takes table is rebuilt with the same columns,
+    rows and indexes (no table refers to takes, so nothing cascades).
+    """
+    connection.execute(f"""CREATE TABLE takes_new (
+            id INTEGER PRIMARY KEY,
+            test_id INTEGER NOT NULL REFERENCES tests(id) ON DELETE CASCADE,
+            role TEXT NOT NULL CHECK (role IN ({STORED_ROLE_LIST})),
+            speaker INTEGER NOT NULL DEFAULT 1 CHECK (speaker >= 1),
+            method TEXT CHECK (method IN ('impulse', 'interrupted', 'sweep')),
+            channel INTEGER NOT NULL DEFAULT 0 CHECK (channel >= 0),
+            sweep_start_hz REAL,
+            sweep_stop_hz REAL,
+            sweep_length_s REAL,
+            file_name TEXT NOT NULL,
+            original_name TEXT NOT NULL,
+            sha256 TEXT NOT NULL CHECK (length(sha256) = 64),
+            sample_rate_hz INTEGER NOT NULL,
+            frames INTEGER NOT NULL,
+            duration_s REAL NOT NULL,
+            source TEXT NOT NULL CHECK (source IN ('upload', 'recorder')),
+            recorder_settings TEXT CHECK (recorder_settings IS NULL OR json_valid(recorder_settings)),
+            excluded INTEGER NOT NULL DEFAULT 0 CHECK (excluded IN (0, 1)),
+            created_at TEXT NOT NULL)""")
+    connection.execute("INSERT INTO takes_new SELECT * FROM takes")
+    connection.execute("DROP TABLE takes")
+    connection.execute("ALTER TABLE takes_new RENAME TO takes")
+    connection.execute("CREATE INDEX takes_test ON takes(test_id)")
+    connection.execute("CREATE INDEX takes_file ON takes(file_name)")
+
+
+# every role a stored take may have since m0004 (a released migration keeps this text unchanged)
+STORED_ROLE_LIST = ("'source', 'receiving', 'background', 'decay', 'source_corner', 'receiving_corner', "
+                    "'impact', 'background_corner', 'calibration', 'calibration_after'")
+
+MIGRATIONS: tuple[Migration, ...] = (m0001_create_tables, m0002_take_measurements, m0003_complaints,
+                                     m0004_background_corner_role)
 SCHEMA_VERSION = len(MIGRATIONS)
 
 
