@@ -63,7 +63,8 @@ with common.fenced():
     if figure is not None:
         st.altair_chart(figure, width="stretch")
         st.caption("Line with points: measured; dashed: the shifted reference curve; orange bars: the "
-                   "unfavourable deviations that set the rating.")
+                   "unfavourable deviations that set the rating; blue-grey whiskers: ± the ISO 12999-1 standard "
+                   "uncertainty of each band, as named in the legend.")
 
     st.subheader("Band values")
     columns = band_columns(assessment)
