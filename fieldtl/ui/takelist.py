@@ -118,7 +118,8 @@ def correction_form(store: Store, take: TakeRecord, test_type: str) -> None:
     with st.form(f"correct-take-{take.id}"):
         role = st.selectbox("What this take is", roles, index=roles.index(take.role),
                             format_func=common.ROLE_NAMES.get, key=f"correct-role-{take.id}")
-        speaker = int(st.number_input(common.position_label(test_type) + " (not used for background or calibrator)",
+        speaker = int(st.number_input(common.position_label(test_type) + " (not used for background or calibrator; "
+                                      "the corner number for a corner's background)",
                                       min_value=1, max_value=20, value=take.speaker, step=1,
                                       key=f"correct-speaker-{take.id}"))
         methods = list(common.METHOD_NAMES)

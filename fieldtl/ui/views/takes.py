@@ -58,8 +58,9 @@ with common.fenced():
         roles = take_roles(setup.test_type)
         role = st.selectbox("What is this take", roles, format_func=common.ROLE_NAMES.get)
         if role not in NO_SOURCE_POSITION:
-            speaker = int(st.number_input(common.position_label(setup.test_type), min_value=1, max_value=20,
-                                          value=1, step=1))
+            label = ("Corner number (the k-th corner take of each position)" if role == "background_corner"
+                     else common.position_label(setup.test_type))
+            speaker = int(st.number_input(label, min_value=1, max_value=20, value=1, step=1))
         if role == "decay":
             method = st.radio("How the decay was made", list(common.METHOD_NAMES),
                               format_func=common.METHOD_NAMES.get)
@@ -93,9 +94,10 @@ with common.fenced():
         with tabs["record"]:
             duration_s = st.number_input("Recording length, s", min_value=1.0, max_value=100.0,
                                          value=6.0 if role != "decay" else 3.0, step=1.0)
+            point = "corner" if role == "background_corner" else "position"
             recorded = recorder(key="fieldtl-recorder", duration_s=duration_s, caution=HEARING_CAUTION,
                                 label=common.ROLE_NAMES[role] + ("" if role in NO_SOURCE_POSITION
-                                                                 else f", position {speaker}"))
+                                                                 else f", {point} {speaker}"))
             if recorded is not None and recorded.take_id not in state.remembered(state.STORED_RECORDINGS):
                 state.remembered(state.STORED_RECORDINGS).add(recorded.take_id)
                 takelist.new_batch(test.id)
