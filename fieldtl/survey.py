@@ -218,9 +218,10 @@ def survey_from_dict(data: dict[str, Any], *, base_dir: Path, source_name: str) 
                   band_levels_csv=band_levels_csv)
 
 
-_COLUMN = re.compile(r"^(?P<kind>L1|L2|Li|B|T|L1c|L2c)(?:_s(?P<speaker>[0-9]{1,2}))?(?:_(?!s[0-9])(?P<label>[^\W_]+))?$")
+_COLUMN = re.compile(r"^(?P<kind>L1|L2|Li|B|T|L1c|L2c|Bc)(?:_s(?P<speaker>[0-9]{1,2}))?(?:_(?!s[0-9])(?P<label>[^\W_]+))?$")
 _COLUMN_ROLES: dict[str, str] = {"L1": "source", "L2": "receiving", "Li": "impact", "B": "background",
-                                 "T": "decay", "L1c": "source_corner", "L2c": "receiving_corner"}
+                                 "T": "decay", "L1c": "source_corner", "L2c": "receiving_corner",
+                                 "Bc": "background_corner"}
 
 
 def read_band_levels_csv(text: str, *, source_name: str) -> tuple[BandColumn, ...]:
@@ -228,8 +229,10 @@ def read_band_levels_csv(text: str, *, source_name: str) -> tuple[BandColumn, ..
 
     One row per band; the first column is the nominal frequency in Hz, each other column one
     position: ``L1`` source-room level, ``L2`` receiving-room level, ``Li`` impact level,
-    ``B`` background, ``T`` reverberation time in s, ``L1c``/``L2c`` corner levels; an optional
-    ``_s<k>`` gives the loudspeaker or tapping position (default 1) and any further ``_name``
+    ``B`` background, ``T`` reverberation time in s, ``L1c``/``L2c`` corner levels, ``Bc`` the
+    background at a receiving-room corner; an optional ``_s<k>`` gives the loudspeaker or tapping
+    position (for ``Bc`` the corner number: the k-th ``L2c`` column of each position; default 1)
+    and any further ``_name``
     labels the position, e.g. ``frequency_hz,L1_s1_a,L1_s1_b,L2_s1_a,B,T_1,T_2``. Empty cells are
     "not measured". Comma, semicolon or tab separated.
 
@@ -266,7 +269,7 @@ def read_band_levels_csv(text: str, *, source_name: str) -> tuple[BandColumn, ..
     for j, title in enumerate(header[1:], start=1):
         match = _COLUMN.match(title)
         if match is None or match["speaker"] in ("0", "00"):
-            raise InputError(f"{source_name}: column {echo(title)} is not one of L1, L2, Li, B, T, L1c, L2c "
+            raise InputError(f"{source_name}: column {echo(title)} is not one of L1, L2, Li, B, T, L1c, L2c, Bc "
                              "(optionally followed by _s<position 1-99> and _<name>)")
         kind = match["kind"]
         values = tuple(_band_value(row[j].strip() if j < len(row) else "", kind, f"row {row_number}, column "

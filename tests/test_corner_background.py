@@ -25,7 +25,8 @@ from fieldtl.naming import position_words
 from fieldtl.store import MIGRATIONS, Store, TestSetup
 from fieldtl.errors import StoreError
 from fieldtl.store import schema
-from fieldtl.survey import load_survey
+from fieldtl.measure import takes_from_band_columns
+from fieldtl.survey import Geometry, Survey, load_survey, read_band_levels_csv
 import make_data
 
 CORNERS = 4
@@ -144,3 +145,46 @@ def test_an_older_store_keeps_its_takes_and_accepts_a_corner_background(tmp_path
                                   role="background_corner", speaker=2)
         assert [(t.id, t.role, t.speaker) for t in upgraded.list_takes(test_id)] == \
             [(kept.id, "receiving_corner", 1), (added.id, "background_corner", 2)]
+
+
+# Pasted sound-level-meter levels (invented), the same value in every band: exact arithmetic.
+CORNERS_DB = {1: (58.0, 57.0, 56.0, 55.0), 2: (57.0, 58.0, 55.0, 54.0)}
+CORNER_BACKGROUND_DB = (50.5, 48.0, 40.0, 30.0)   # corner 1: margins 7.5 and 6.5 dB; corner 2: 9 and 10 dB
+
+
+def _pasted(with_corner_backgrounds: bool):
+    bands = (50, 63, 80, 100, 125, 160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250, 1600, 2000, 2500, 3150)
+    header = ["frequency_hz", "L1_s1_a", "L1_s1_b", "L2_s1_a", "L2_s1_b", "L1_s2_a", "L1_s2_b", "L2_s2_a", "L2_s2_b",
+              "B", "T"]
+    values = [90.0] * 2 + [50.0] * 2 + [90.0] * 2 + [50.0] * 2 + [30.0, 0.5]
+    for speaker, corners in CORNERS_DB.items():
+        header += [f"L2c_s{speaker}_{k}" for k in range(1, CORNERS + 1)]
+        values += corners
+    if with_corner_backgrounds:
+        header += [f"Bc_s{k}" for k in range(1, CORNERS + 1)]
+        values += CORNER_BACKGROUND_DB
+    text = "\n".join([",".join(header)] + [",".join([str(f)] + [f"{v:g}" for v in values]) for f in bands])
+    columns = read_band_levels_csv(text, source_name="pasted")
+    survey = Survey(title="Invented", test_type="airborne", geometry=Geometry(20.0, 10.0, 50.0),
+                    source_name="pasted", band_columns=columns)
+    return assess(survey, takes_from_band_columns(columns), calibrated=True)
+
+
+def test_pasted_corner_backgrounds_correct_each_corner_exactly():
+    assessment = _pasted(True)
+    assert "corner_background_missing" not in {f.code for f in assessment.findings}
+    l_db = 50.0          # default level: 20 dB over its background, no correction (ISO 16283-1 rule)
+    highest_db = [max(_by_hand(c, b) for c, b in zip(corners, CORNER_BACKGROUND_DB)) for corners in CORNERS_DB.values()]
+    # position 1: corner 1, 58 over 50.5 (margin 7.5 dB): 10 lg(10^5.8 - 10^5.05) = 57.25 dB beats corner 2's
+    # 57 over 48 (9 dB) = 56.42 dB; position 2: corner 2, 58 over 48 (margin exactly 10 dB): not corrected
+    assert highest_db[0] == pytest.approx(10 * math.log10(10 ** 5.8 - 10 ** 5.05)) and highest_db[1] == 58.0
+    l_corner_db = _energy_mean(highest_db)
+    expected = 10 * math.log10((10 ** (0.1 * l_corner_db) + 2 * 10 ** (0.1 * l_db)) / 3)
+    for hz in (50.0, 63.0, 80.0):
+        assert assessment.result.receiving_level_db.at(hz) == pytest.approx(expected, abs=1e-6)
+    assert assessment.result.receiving_level_db.at(100.0) == pytest.approx(l_db)   # above the LF bands: untouched
+    without = _pasted(False)
+    assert "corner_background_missing" in {f.code for f in without.findings}
+    # with the room's 30 dB background every corner keeps its level: position 1's highest is 58 dB
+    assert without.result.receiving_level_db.at(63.0) == pytest.approx(
+        10 * math.log10((10 ** 5.8 + 2 * 10 ** 5.0) / 3), abs=1e-6)

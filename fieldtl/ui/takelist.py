@@ -28,6 +28,7 @@ COLUMNS: dict[str, tuple[str, str]] = {
     "decay": ("T", "reverberation time of the receiving room, s"),
     "source_corner": ("L1c", "source-room corner level (rooms under 25 m³), dB"),
     "receiving_corner": ("L2c", "receiving-room corner level (rooms under 25 m³), dB"),
+    "background_corner": ("Bc", "background noise in a receiving-room corner, source off (`_s2`: corner 2), dB"),
 }
 
 
