@@ -10,6 +10,7 @@ from collections.abc import Iterator
 
 import streamlit as st
 
+from fieldtl import validate
 from fieldtl.assess import Assessment
 from fieldtl.cautions import CAUTIONS
 from fieldtl.errors import FieldTLError
@@ -21,12 +22,13 @@ from fieldtl.ui import cached, gate, progress, state
 _LOG = logging.getLogger("fieldtl.ui")
 
 # Longest user texts typed into the app's forms (characters). Streamlit counts and stops typing at
-# these (see ``text_field``). Sizes are common practice:
-# a name fits a report heading, a note fits a report page.
-NAME_CHARS = 120          # project, client, engineer, organisation, test title, requirement
+# these (see ``text_field``); names, requirements and notes use the store's own bounds
+# (fieldtl.validate), so nothing typed is refused on saving.
+NAME_CHARS = validate.NAME_CHARS               # project, client, engineer, organisation, test title
+REQUIREMENT_CHARS = validate.REQUIREMENT_CHARS # "DnT,w + Ctr >= 45" and its kin
 ADDRESS_CHARS = 200
 DATE_CHARS = 40
-NOTE_CHARS = 4_000        # construction in words, instruments, positions, notes
+NOTE_CHARS = validate.NOTE_CHARS               # construction in words, instruments, positions, notes
 BAND_TABLE_CHARS = 50_000 # pasted band levels: 21 bands x 30 columns of "123.4," fit many times
 
 

@@ -53,7 +53,7 @@ with common.fenced():
         construction = common.text_field("Construction (as built, in words)", old.construction,
                                          limit=common.NOTE_CHARS, area=True, height=80)
         requirement = common.text_field("Requirement to check (your local code decides)", old.requirement or "",
-                                       limit=common.NAME_CHARS, placeholder="DnT,w + Ctr >= 45")
+                                       limit=common.REQUIREMENT_CHARS, placeholder="DnT,w + Ctr >= 45")
         lab_rw = st.number_input("Laboratory Rw of the element, dB (0 if not declared)", min_value=0.0,
                                  value=float(old.element_lab_rw_db or 0.0), step=1.0)
         situation = st.radio("Uncertainty situation (ISO 12999-1)", list(SITUATIONS),
