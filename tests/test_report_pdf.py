@@ -1,6 +1,6 @@
 """The PDF report: built from pasted band levels (no audio), read back with pypdf.
 
-Numbers are checked against hand calculations from the standards' formulas (facts sheet), the
+Numbers are checked against hand calculations from the standards' formulas (ISO 16283-1/-2 definitions, from memory), the
 layout rules (cautions on every page, user text printed literally) against the report's brief.
 """
 
@@ -69,7 +69,7 @@ def worked_example():
 
 def test_single_numbers_and_band_values_of_the_worked_example(worked_example):
     text = _flat("\n".join(worked_example))
-    # Facts sheet 1.1 worked example [computed]: L1 95, L2 45, T 0.8 s, V 40 m3, S 10 m2 ->
+    # Analytic, from the ISO 16283-1 definitions (from memory): L1 95, L2 45, T 0.8 s, V 40 m3, S 10 m2 ->
     # D 50.0, DnT 52.04 -> 52.0, R' 50.97 -> 51.0 dB in every band (ISO 16283-1 formulas).
     assert "50 95.0 45.0 10.0 0.80 50.0 51.0 52.0 51.0" in text
     assert "5000 95.0 45.0 10.0 0.80 50.0 51.0 52.0 51.0" in text
@@ -127,7 +127,7 @@ def background_limited():
 
 def test_background_limited_bands_are_marked_as_bounds(background_limited):
     # L2 45 dB over background 40 dB: margin 5 dB <= 6 -> 1.3 dB subtracted and the band is a limit
-    # (ISO 16283-1 background rule, facts sheet 1.8): L2 43.7 is an upper bound, D = 95 - 43.7 = 51.3
+    # (ISO 16283-1 background-correction rule, from memory): L2 43.7 is an upper bound, D = 95 - 43.7 = 51.3
     # and DnT = 51.3 + 10 lg(0.8 / 0.5) = 53.3 lower bounds, and so is every rating.
     text = background_limited
     assert "50 95.0 ≤43.7 40.0 0.80 ≥51.3" in text
@@ -142,7 +142,7 @@ def test_background_limited_bands_are_marked_as_bounds(background_limited):
 
 def test_impact_report_marks_upper_bounds():
     # Li 60 dB over background 55 dB: margin 5 dB -> Li 58.7 dB, an upper bound; L'nT = Li - 10 lg(T/T0)
-    # = 58.7 - 10 lg(0.8 / 0.5) = 56.66 -> 56.7, also an upper bound (ISO 16283-2, facts sheet 1.8).
+    # = 58.7 - 10 lg(0.8 / 0.5) = 56.66 -> 56.7, also an upper bound (ISO 16283-2 background-correction rule, from memory).
     assessment, survey = _impact()
     pages = _pages(assessment_to_pdf(assessment))
     text = _flat("\n".join(pages))

@@ -2,7 +2,7 @@
 Survey, and project archives (good ones round-trip, bad ones change nothing).
 
 Outside references: hashlib.sha256 (FIPS 180-4) for checksums, soundfile for what was written,
-the ISO 16283-1 formulas (facts sheet 1.1) for the synthetic survey's truth, and the zip
+the ISO 16283-1 formulas (D, DnT, R' definitions, from memory) for the synthetic survey's truth, and the zip
 format's central directory layout (PKWARE APPNOTE 4.3.12) for the forged archives.
 """
 
