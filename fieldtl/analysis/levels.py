@@ -122,12 +122,8 @@ def analyse_levels(
     """
     if band_route not in ("filtered", "spectral"):
         raise InputError(f"{source_name}: band route must be 'filtered' or 'spectral', got {band_route!r:.40}")
-    bank = _bank(sample_rate_hz, fraction, band_range_hz, source_name)
-    if not (math.isfinite(history_interval_s) and history_interval_s * sample_rate_hz >= 1):
-        raise InputError(f"{source_name}: history interval must be at least one sample, got {history_interval_s}")
-    shortest_s = shortest_usable_s(bank)
-    if total_frames is not None:
-        _require_length(total_frames, sample_rate_hz, shortest_s, source_name, bank)
+    bank, shortest_s = _checked_bank(sample_rate_hz, fraction, band_range_hz, history_interval_s, total_frames,
+                                     source_name)
 
     meter = _Meter(bank, interval_frames=round(history_interval_s * sample_rate_hz), band_route=band_route)
     for chunk in _chunks(blocks, source_name):
@@ -196,12 +192,8 @@ def stationary_levels(
     without C weighting, the F/S time weighting and their maxima: what a take of a sound
     insulation test needs, at about a third of the cost.
     """
-    bank = _bank(sample_rate_hz, fraction, band_range_hz, source_name)
-    if not (math.isfinite(history_interval_s) and history_interval_s * sample_rate_hz >= 1):
-        raise InputError(f"{source_name}: history interval must be at least one sample, got {history_interval_s}")
-    shortest_s = shortest_usable_s(bank)
-    if total_frames is not None:
-        _require_length(total_frames, sample_rate_hz, shortest_s, source_name, bank)
+    bank, shortest_s = _checked_bank(sample_rate_hz, fraction, band_range_hz, history_interval_s, total_frames,
+                                     source_name)
     spectral = SpectralBands(bank)
     sos = weighting_sos("A", sample_rate_hz=bank.sample_rate_hz).copy()   # writable copy for sosfilt
     state = np.zeros((sos.shape[0], 2))
@@ -265,6 +257,18 @@ def shortest_usable_s(bank: FilterBank) -> float:
     """Shortest recording that leaves something to average in every band and weighted level."""
     band_s = max(band.settle_s + MIN_BAND_AVERAGING_BANDWIDTHS / band.bandwidth_hz for band in bank.bands)
     return max(band_s, WEIGHTING_SETTLE_S + MIN_WEIGHTED_AVERAGING_S)
+
+
+def _checked_bank(sample_rate_hz: float, fraction: Fraction, band_range_hz: tuple[float, float] | None,
+                  history_interval_s: float, total_frames: int | None, source_name: str) -> tuple[FilterBank, float]:
+    """The bank for these settings and its shortest usable length, after the checks both analyses share."""
+    bank = _bank(sample_rate_hz, fraction, band_range_hz, source_name)
+    if not (math.isfinite(history_interval_s) and history_interval_s * sample_rate_hz >= 1):
+        raise InputError(f"{source_name}: history interval must be at least one sample, got {history_interval_s}")
+    shortest_s = shortest_usable_s(bank)
+    if total_frames is not None:
+        _require_length(total_frames, sample_rate_hz, shortest_s, source_name, bank)
+    return bank, shortest_s
 
 
 def _require_length(frames: int, sample_rate_hz: float, shortest_s: float, source_name: str,
