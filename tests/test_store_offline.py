@@ -21,7 +21,7 @@ from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
 from fieldtl.store import Store
 from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.location import open_store
-from fieldtl.store.offline import check_out, push
+from fieldtl.store.offline import FieldDifference, check_out, push
 
 PASSWORD = "invented-password-1"
 ROOT = Path(__file__).resolve().parents[1]
@@ -75,7 +75,7 @@ def test_offline_edits_on_both_sides_merge_and_a_settings_conflict_is_shown(site
     before = _server_state(ann, site["project"].id)
     refused = push(laptop, tom, local)
     assert not refused.pushed and [c.local_test_id for c in refused.conflicts] == [local_a.id]
-    assert refused.conflicts[0].fields == ("settings",)
+    assert refused.conflicts[0].differences == (FieldDifference("app setting chosen", "on site", "in the office"),)
     assert "changed here and on the server; choose which to keep" in refused.conflicts[0].message()
     assert _server_state(ann, site["project"].id).tests == before.tests                  # nothing sent
     assert _server_state(ann, site["project"].id).takes == before.takes

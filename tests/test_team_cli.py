@@ -64,7 +64,7 @@ def test_checkout_and_push_from_the_command_line(pg_url, monkeypatch, capsys, tm
         ann.update_test(test.id, replace(AIRBORNE, settings={"there": 1}))
         assert main(["team", "push", str(local_project), *laptop]) == 1           # a conflict: nothing sent
         out = capsys.readouterr().out
-        assert f"test {local_test.id}: test 'Bedroom 4 to bedroom 7': settings changed here and on the server" in out
+        assert f"test {local_test.id}: test 'Bedroom 4 to bedroom 7': app setting here, app setting there changed here and on the server" in out
         assert ann.list_takes(test.id) == ()
         assert main(["team", "push", str(local_project), *laptop, "--mine", str(local_test.id)]) == 0
         assert "pushed: 1 takes and 0 tests added, 1 tests' settings updated" in capsys.readouterr().out
