@@ -104,6 +104,25 @@ def test_a_stale_settings_edit_is_refused_and_overwrites_nothing(location, tmp_p
         assert isinstance(StaleEditError("x"), StoreError)
 
 
+def test_a_stale_band_levels_edit_is_refused_and_overwrites_nothing(location, tmp_path):
+    levels = "frequency_hz,L1,L2\n100,90,50\n"
+    with open_store(location, audio_dir=tmp_path / "audio") as first, \
+            open_store(location, audio_dir=tmp_path / "audio") as second:
+        opened = first.create_test(first.create_project("Invented project").id, AIRBORNE)
+        mine = second.get_test(opened.id)
+        theirs = first.set_band_levels(opened.id, levels, expected_updated_at=opened.updated_at)   # current: accepted
+        assert theirs.band_levels_csv == levels and theirs.updated_at != opened.updated_at
+        with pytest.raises(StaleEditError, match=r"^test 'Bedroom 4 to bedroom 7': changed by someone else at "
+                                                 r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d UTC after you opened it; "
+                                                 r"reload the test and make your change again$"):
+            second.set_band_levels(mine.id, None, expected_updated_at=mine.updated_at)
+        assert second.get_test(opened.id) == theirs                       # the other edit kept
+        changed = first.update_test(opened.id, AIRBORNE, expected_updated_at=theirs.updated_at)
+        with pytest.raises(StaleEditError):                              # a settings edit makes it stale too
+            second.set_band_levels(mine.id, levels, expected_updated_at=theirs.updated_at)
+        assert second.set_band_levels(mine.id, None, expected_updated_at=changed.updated_at).band_levels_csv is None
+
+
 def test_two_writers_adding_takes_at_once_lose_nothing(location, tmp_path):
     count = 15
     with open_store(location, audio_dir=tmp_path / "audio") as setup:

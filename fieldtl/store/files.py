@@ -14,6 +14,7 @@ import uuid
 from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from fieldtl.audio.ingest import check_whole_read, file_sha256, iter_blocks, open_recording
 from fieldtl.errors import InputError
@@ -119,6 +120,21 @@ def leftover_files(audio_folder: Path, used: set[str], *, other_folders: Iterabl
             if unfinished or (folder == audio_folder and _is_content_name(path.name)):
                 found.append(path)
     return tuple(dict.fromkeys(found))
+
+
+def remove_unused(db: Any, audio_folder: Path, *, other_folders: Iterable[Path] = (),
+                  stale_s: float) -> tuple[Path, ...]:
+    """Remove what :func:`leftover_files` finds, given the takes table of ``db`` (an open write
+    transaction: nobody can be placing a file meanwhile); returns what was removed."""
+    used = {r[0] for r in db.execute("SELECT DISTINCT file_name FROM takes")}
+    removed = []
+    for path in leftover_files(audio_folder, used, other_folders=other_folders, stale_s=stale_s):
+        try:
+            path.unlink()
+        except FileNotFoundError:
+            continue
+        removed.append(path)
+    return tuple(removed)
 
 
 def _is_content_name(name: str) -> bool:

@@ -23,9 +23,9 @@ from fieldtl.audio.ingest import open_recording
 from fieldtl.errors import InputError, StoreError
 from fieldtl.store import rows
 from fieldtl.store.connection import Database
-from fieldtl.store.errors import StaleEditError
-from fieldtl.store.files import (STALE_INCOMING_S, WHOLE_READ_ROLES, check_audio_file, incoming_name,
-                                 leftover_files, place_file, write_durably)
+from fieldtl.store.errors import refuse_stale
+from fieldtl.store.files import (STALE_INCOMING_S, WHOLE_READ_ROLES, check_audio_file, incoming_name, place_file,
+                                 remove_unused, write_durably)
 from fieldtl.store.complaints import CLIPS_FOLDER, ComplaintRows
 from fieldtl.store.measurements import MeasurementRows
 from fieldtl.store.schema import (Project, ProjectSnapshot, TakeRecord, TestRecord, TestSetup, check_project_texts,
@@ -166,9 +166,7 @@ class Store:
         where = f"test {echo(setup.title)}"
         with self._write() as db:
             current = self._test(db, test_id)
-            if expected_updated_at is not None and current.updated_at != expected_updated_at:
-                raise StaleEditError(f"{where}: changed by someone else at {current.updated_at[:19]} UTC after "
-                                     "you opened it; reload the test and make your change again")
+            refuse_stale(where, current.updated_at, expected_updated_at)
             check_test_texts(setup, current.band_levels_csv, where)
             if setup.test_type != current.setup.test_type:
                 for take in self._takes(db, test_id):
@@ -190,11 +188,14 @@ class Store:
             found = db.execute("SELECT * FROM tests WHERE project_id = ? ORDER BY id", (project_id,)).fetchall()
         return tuple(rows.row_to_test(r) for r in found)
 
-    def set_band_levels(self, test_id: int, csv_text: str | None) -> TestRecord:
-        """Store pasted sound-level-meter band levels (checked as survey.read_band_levels_csv does), or clear them."""
+    def set_band_levels(self, test_id: int, csv_text: str | None, *,
+                        expected_updated_at: str | None = None) -> TestRecord:
+        """Store pasted sound-level-meter band levels (checked as survey.read_band_levels_csv does), or
+        clear them; ``expected_updated_at`` refuses a stale edit as :meth:`update_test` does."""
         now = utc_now()
         with self._write() as db:
             test = self._test(db, test_id)
+            refuse_stale(f"test {echo(test.setup.title)}", test.updated_at, expected_updated_at)
             check_test_texts(test.setup, csv_text, f"test {echo(test.setup.title)}")
             db.execute("UPDATE tests SET band_levels_csv = ?, updated_at = ? WHERE id = ?", (csv_text, now, test_id))
             rows.touch_project(db, test.project_id, now)
@@ -303,17 +304,8 @@ class Store:
         any take refers to is never removed, nor any file not named like the store's own.
         """
         with self._write() as db:
-            used = {r[0] for r in db.execute("SELECT DISTINCT file_name FROM takes")}
-            found = leftover_files(self.audio_dir, used, stale_s=stale_s,
-                                   other_folders=() if self.folder is None else (self.folder,))
-            removed = []
-            for path in found:
-                try:
-                    path.unlink()
-                except FileNotFoundError:
-                    continue
-                removed.append(path)
-        return tuple(removed)
+            return remove_unused(db, self.audio_dir, stale_s=stale_s,
+                                 other_folders=() if self.folder is None else (self.folder,))
 
     # --- the calculator's view ---------------------------------------------------------------------
 
