@@ -21,7 +21,8 @@ CODE = "k7m2-q9tx-4hvw"
 SECRET_NAME = "Invented project Quillmere"        # must never reach a browser before the code
 VIEWS = {"projects.py": "Projects", "setup.py": "Test set-up", "takes.py": "Takes", "results.py": "Results",
          "construction.py": "Construction check", "report.py": "Report and export",
-         "signals.py": "Test signals", "safety.py": "Safety and about"}
+         "signals.py": "Test signals", "safety.py": "Safety and about", "team.py": "Team server",
+         "account.py": "Account and team"}
 
 
 class FakeClock:

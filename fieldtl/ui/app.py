@@ -13,7 +13,7 @@ from pathlib import Path
 import streamlit as st
 
 from fieldtl.errors import FieldTLError
-from fieldtl.ui import cached, gate, state, takelist
+from fieldtl.ui import cached, gate, login, state, takelist
 
 # Not named "pages": Streamlit would find a folder of that name by itself and serve each file in it.
 PAGES = Path(__file__).resolve().parent / "views"
@@ -72,7 +72,14 @@ def main() -> None:
             st.Page(PAGES / "safety.py", title="Safety and about", icon="⚠️"),
         ],
     }
-    navigation = st.navigation(sections, position="hidden")
+    # The team pages: accounts on a team server, check-out and push on a device's own store. Both are
+    # known to the navigation (a typed address reaches the page, which says why it does not apply);
+    # the menu lists only the one that applies.
+    team = {True: st.Page(PAGES / "account.py", title="Account and team", icon="👥"),
+            False: st.Page(PAGES / "team.py", title="Team server", icon="🔄")}
+    on_server = login.server_configured()
+    sections["More"].insert(-1, team[on_server])
+    navigation = st.navigation({**sections, "Not listed": [team[not on_server]]}, position="hidden")
     _menu(sections, navigation)
     if navigation.url_path != "takes":
         takelist.finish_removals(cached.store())   # a removed take's undo lasts until the Takes page is left

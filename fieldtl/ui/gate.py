@@ -28,7 +28,7 @@ def passed() -> bool:
     return not _configured_code() or st.session_state.get(state.ACCESS_OK) is True
 
 
-def _client_keys() -> tuple[str, ...]:
+def client_keys() -> tuple[str, ...]:
     """Keys wrong guesses count against: this session and, where known, the client's address."""
     ctx = get_script_run_ctx()
     keys = [f"session:{ctx.session_id if ctx is not None else 'none'}"]
@@ -43,7 +43,7 @@ def draw() -> None:
     code = _configured_code()
     st.title("fieldtl")
     if login.server_configured():       # accounts replace the access code
-        login.draw(_client_keys())
+        login.draw(client_keys())
         st.stop()
     try:
         access.check_chosen_code(code)
@@ -52,7 +52,7 @@ def draw() -> None:
                  "(a code is made for you) or choose a longer one.")
         st.stop()
     st.write("This app is shared on the network. Enter the access code shown where it was started.")
-    keys = _client_keys()
+    keys = client_keys()
     with st.form("fieldtl-gate", clear_on_submit=True):
         entered = st.text_input("Access code", type="password", max_chars=access.MAX_CODE_CHARS,
                                 placeholder="xxxx-xxxx-xxxx")

@@ -57,3 +57,8 @@ def draw(keys: tuple[str, ...]) -> None:
         st.error(f"Too many wrong passwords from here: the next try is looked at in {access.describe_wait(wait_s)}.")
     elif submitted:
         st.info("Type your account name and password first.")
+
+
+def sign_out() -> None:
+    """Forget this session's account: the next run shows the sign-in form."""
+    st.session_state.pop(ACCOUNT_KEY, None)
