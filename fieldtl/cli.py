@@ -140,6 +140,8 @@ def _parser() -> argparse.ArgumentParser:
     clean = store_actions.add_parser("clean", help="remove audio no take refers to and unfinished uploads or "
                                                    "exports older than an hour")
     clean.add_argument("--data-dir", type=Path, help="folder of the project store (default: your user data folder)")
+    clean.add_argument("--store", help="postgresql:// URL of a team server to clean instead (default: FIELDTL_STORE_URL "
+                                       "when no --data-dir is given); its audio is in DATA_DIR/audio")
     clean.set_defaults(run=_run_store_clean)
 
     from fieldtl.noise.command import add_record_options
@@ -418,22 +420,16 @@ def _run_signal(args: argparse.Namespace) -> int:
 
 
 def _run_store_clean(args: argparse.Namespace) -> int:
-    from fieldtl.store import Store, default_data_dir
-    from fieldtl.store.connection import DATABASE_NAME
-
-    data_dir = (args.data_dir or default_data_dir()).expanduser()
-    if not (data_dir / DATABASE_NAME).is_file():
-        raise InputError(f"{file_label(data_dir)}: no fieldtl store in this folder ({DATABASE_NAME} not found)")
     from fieldtl.measure_cache import analysis_version
+    from fieldtl.store.maintenance import clean_store
 
-    with Store.open(data_dir / DATABASE_NAME) as store:
-        removed = store.clean_files()
-        forgotten = store.measurements.forget_other_versions(analysis_version())
-    for path in removed:
+    done = clean_store(analysis_version=analysis_version(), data_dir=args.data_dir, store_url=args.store)
+    for path in done.removed:
         print(f"removed {path.parent.name}/{path.name}")
-    if forgotten:
-        print(f"{forgotten} kept measurement{'' if forgotten == 1 else 's'} of an earlier analysis version removed")
-    print(f"{len(removed)} file{'' if len(removed) == 1 else 's'} removed from the store in {data_dir}")
+    if done.forgotten:
+        print(f"{done.forgotten} kept measurement{'' if done.forgotten == 1 else 's'} of an earlier analysis "
+              "version removed")
+    print(f"{len(done.removed)} file{'' if len(done.removed) == 1 else 's'} removed from the store in {done.where}")
     return 0
 
 
