@@ -23,9 +23,12 @@ from pathlib import Path
 from typing import Any
 
 from fieldtl.errors import InputError
-from fieldtl.store.location import STORE_URL_VARIABLE, check_store_url
-from fieldtl.store.pg_schema import PROJECT_ROLES
 
+# The parser is built for every fieldtl command: nothing of the store is imported until a team
+# action runs. These two equal fieldtl.store.pg_schema.PROJECT_ROLES and
+# fieldtl.store.location.STORE_URL_VARIABLE (tests/test_team_cli.py checks).
+PROJECT_ROLES = ("owner", "tester", "reviewer")
+STORE_URL_VARIABLE = "FIELDTL_STORE_URL"
 PASSWORD_VARIABLE = "FIELDTL_NEW_PASSWORD"
 LOGIN_VARIABLE = "FIELDTL_PASSWORD"
 EXIT_CONFLICTS = 1
@@ -63,6 +66,8 @@ def run_team(args: argparse.Namespace) -> int:
     url = args.store or os.environ.get(STORE_URL_VARIABLE, "")
     if not url:
         raise InputError(f"team: give --store postgresql://... or set {STORE_URL_VARIABLE}")
+    from fieldtl.store.location import check_store_url
+
     check_store_url(url, "--store")
     from fieldtl.store.postgres import ServerStore
 
@@ -101,10 +106,13 @@ def _offline(args: argparse.Namespace, account: Any) -> int:
     if not result.pushed:
         for conflict in result.conflicts:
             print(f"test {conflict.local_test_id}: {conflict.message()}")
+            for difference in conflict.differences:
+                print(f"  {difference.name}: here {difference.here}; on the server {difference.server}")
         print("nothing was pushed: give --mine TEST or --server TEST for each test above")
         return EXIT_CONFLICTS
     print(f"pushed: {result.takes_added} takes and {result.tests_added} tests added, "
-          f"{result.tests_updated} tests' settings updated")
+          f"{result.tests_updated} tests' settings and {result.takes_updated} takes' details updated, "
+          f"{result.takes_removed} takes removed")
     return 0
 
 

@@ -4,12 +4,15 @@ Runs against the real PostgreSQL server scripts/test starts (FIELDTL_TEST_PG_URL
 command's exit status (2 for bad input, as every fieldtl command) and what the server then holds.
 """
 
+import subprocess
+import sys
 from dataclasses import replace
 
 import pytest
 from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
 
+import fieldtl.team_command as team_command
 from fieldtl.cli import main
 from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.location import open_store
@@ -67,6 +70,19 @@ def test_checkout_and_push_from_the_command_line(pg_url, monkeypatch, capsys, tm
         assert f"test {local_test.id}: test 'Bedroom 4 to bedroom 7': app setting here, app setting there changed here and on the server" in out
         assert ann.list_takes(test.id) == ()
         assert main(["team", "push", str(local_project), *laptop, "--mine", str(local_test.id)]) == 0
-        assert "pushed: 1 takes and 0 tests added, 1 tests' settings updated" in capsys.readouterr().out
+        assert ("pushed: 1 takes and 0 tests added, 1 tests' settings and 0 takes' details updated, "
+                "0 takes removed") in capsys.readouterr().out
         assert ann.get_test(test.id).setup.settings == {"here": 1}
         assert [t.original_name for t in ann.list_takes(test.id)] == ["site.wav"]
+
+
+def test_the_team_command_imports_no_store_until_an_action_runs():
+    # every fieldtl command builds the team parser; a fresh interpreter shows what importing it loads
+    loaded = subprocess.run([sys.executable, "-c", "import sys, fieldtl.team_command; print(' '.join(sorted("
+                             "m for m in sys.modules if m.startswith(('fieldtl.store', 'psycopg', 'argon2')))))"],
+                            capture_output=True, text=True, check=True).stdout.split()
+    assert loaded == []
+    from fieldtl.store.location import STORE_URL_VARIABLE
+    from fieldtl.store.pg_schema import PROJECT_ROLES
+    assert team_command.PROJECT_ROLES == PROJECT_ROLES                 # the parser's choices are the schema's
+    assert team_command.STORE_URL_VARIABLE == STORE_URL_VARIABLE
