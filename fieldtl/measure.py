@@ -10,10 +10,14 @@ loads them.
 
 from __future__ import annotations
 
+import os
+import queue
 from collections.abc import Callable, Sequence
+from concurrent.futures import Future, ThreadPoolExecutor
+from concurrent.futures import TimeoutError as FutureTimeout
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -35,6 +39,8 @@ ANALYSIS_VERSION = 2     # 2: level takes' band Leq by the spectral route (withi
 FIELD_RANGE_HZ = (50.0, 5000.0)                 # ISO 16283-1/-2 bands with the optional extensions
 Progress = Callable[[str, float], None]         # (take name, fraction of that take done)
 TakeMeasurer = Callable[..., tuple[TakeSummary, tuple[Finding, ...]]]   # measure_take's signature
+MAX_WORKERS = 4          # threads measuring takes at once (each holds one take's audio or blocks)
+PROGRESS_EVERY_S = 0.1   # how often the calling thread passes on the takes' progress while it waits
 
 
 @dataclass(frozen=True, slots=True)
@@ -54,19 +60,34 @@ class MeasuredSurvey:
 
 def measure_survey(survey: Survey, *, progress: Progress | None = None,
                    take_measurer: TakeMeasurer | None = None,
-                   calibrator: Callable[[Path, int, float], Calibration] | None = None) -> MeasuredSurvey:
+                   calibrator: Callable[[Path, int, float], Calibration] | None = None,
+                   workers: int | None = None) -> MeasuredSurvey:
     """Measure the survey's recordings, or take its pasted band levels as they are.
 
     ``take_measurer`` and ``calibrator`` default to :func:`measure_take` and
-    :func:`calibrate_file`; the app passes cached versions of the same functions.
+    :func:`calibrate_file`; the app passes cached versions of the same functions (they must be
+    safe to call from several threads, as the store's are). Takes are measured by ``workers``
+    threads (default :func:`default_workers`; numpy, scipy and soundfile release the GIL while they
+    work); the result, and the error raised for the first take in survey order that cannot be
+    measured, are the same as one thread gives. ``progress`` is only called from the calling thread.
     """
     if survey.band_columns:
         return MeasuredSurvey(takes_from_band_columns(survey.band_columns), None, None, (), from_meter=True)
     measure = take_measurer or measure_take
     calibrate = calibrator or calibrate_file
     spec = survey.calibration
-    calibration = calibrate(spec.file, spec.channel, spec.reference_db) if spec else None
-    after = calibrate(spec.file_after, spec.channel, spec.reference_db) if spec and spec.file_after else None
+    with _Runner(default_workers() if workers is None else workers, progress) as runner:
+        after_job = (runner.submit(calibrate, spec.file_after, spec.channel, spec.reference_db)
+                     if spec and spec.file_after else None)
+        # decays do not depend on the calibration: they start while the calibrator tone is read
+        decay_jobs = {i: runner.submit(measure, take, level_offset_db=0.0, progress=runner.progress)
+                      for i, take in enumerate(survey.takes) if take.role == "decay"}
+        calibration = calibrate(spec.file, spec.channel, spec.reference_db) if spec else None
+        offset_db = 0.0 if calibration is None else calibration.offset_db
+        jobs = [decay_jobs.get(i) or runner.submit(measure, take, level_offset_db=offset_db, progress=runner.progress)
+                for i, take in enumerate(survey.takes)]
+        after = runner.result(after_job) if after_job is not None else None
+        measured = [runner.result(job) for job in jobs]
     findings: list[Finding] = []
     for cal in (calibration, after):
         if cal is not None:
@@ -74,13 +95,63 @@ def measure_survey(survey: Survey, *, progress: Progress | None = None,
     if calibration is not None and after is not None:
         from fieldtl.audio.calibration import calibration_drift
         findings += calibration_drift(calibration, after)[1]
-    offset_db = 0.0 if calibration is None else calibration.offset_db
-    takes = []
-    for spec in survey.takes:
-        take, take_findings = measure(spec, level_offset_db=offset_db, progress=progress)
-        takes.append(take)
+    for _, take_findings in measured:
         findings += take_findings
-    return MeasuredSurvey(tuple(takes), calibration, after, tuple(findings))
+    return MeasuredSurvey(tuple(take for take, _ in measured), calibration, after, tuple(findings))
+
+
+def default_workers() -> int:
+    """Threads that measure a survey's takes: the processor cores this process may use, at most MAX_WORKERS."""
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    return max(1, min(cores, MAX_WORKERS))
+
+
+class _Runner:
+    """Runs jobs on a pool of threads (or in the calling thread when there is one worker), passing
+    their progress reports to the calling thread. Mutable by design; use it as a context manager."""
+
+    def __init__(self, workers: int, progress: Progress | None) -> None:
+        self._pool = ThreadPoolExecutor(workers, thread_name_prefix="fieldtl-take") if workers > 1 else None
+        self._report = progress
+        self._reports: queue.SimpleQueue[tuple[str, float]] = queue.SimpleQueue()
+        self.progress: Progress | None = None if progress is None else (
+            progress if self._pool is None else lambda name, done: self._reports.put((name, done)))
+
+    def __enter__(self) -> _Runner:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)   # an error: the jobs not started never run
+
+    def submit(self, job: Callable[..., Any], *args: Any, **kwargs: Any) -> Future[Any]:
+        if self._pool is not None:
+            return self._pool.submit(job, *args, **kwargs)
+        future: Future[Any] = Future()
+        try:
+            future.set_result(job(*args, **kwargs))
+        except Exception as exc:  # noqa: BLE001 - raised again by result(), in survey order
+            future.set_exception(exc)
+        return future
+
+    def result(self, job: Future[Any]) -> Any:
+        """The job's result (or its error, raised here), reporting progress while waiting."""
+        while True:
+            try:
+                value = job.result(timeout=PROGRESS_EVERY_S if self._report is not None else None)
+            except FutureTimeout:
+                self._pass_reports()
+                continue
+            self._pass_reports()
+            return value
+
+    def _pass_reports(self) -> None:
+        while self._report is not None:
+            try:
+                name, done = self._reports.get_nowait()
+            except queue.Empty:
+                return
+            self._report(name, done)
 
 
 def measure_take(spec: TakeSpec, *, level_offset_db: float,

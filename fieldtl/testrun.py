@@ -39,16 +39,19 @@ __all__ = ["BackgroundMeasurer", "MeasurementCache", "TakeOutcome", "TestTakes",
 
 
 def assess_survey(survey: Survey, *, cache: MeasurementCache | None = None, options: AssessOptions = AssessOptions(),
-                  progress: Progress | None = None) -> Assessment:
-    """Measure the survey's takes (through ``cache`` if given) and assess the test."""
-    measured = measure_with(survey, cache=cache, progress=progress)
+                  progress: Progress | None = None, workers: int | None = None) -> Assessment:
+    """Measure the survey's takes (through ``cache`` if given; by ``workers`` threads, default one per
+    core, see :func:`fieldtl.measure.measure_survey`) and assess the test."""
+    measured = measure_with(survey, cache=cache, progress=progress, workers=workers)
     return assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings, options=options)
 
 
-def measure_with(survey: Survey, *, cache: MeasurementCache | None, progress: Progress | None = None) -> MeasuredSurvey:
+def measure_with(survey: Survey, *, cache: MeasurementCache | None, progress: Progress | None = None,
+                 workers: int | None = None) -> MeasuredSurvey:
     if cache is None:
-        return measure_survey(survey, progress=progress)
-    return measure_survey(survey, progress=progress, take_measurer=cache.take, calibrator=cache.calibration)
+        return measure_survey(survey, progress=progress, workers=workers)
+    return measure_survey(survey, progress=progress, take_measurer=cache.take, calibrator=cache.calibration,
+                          workers=workers)
 
 
 def store_cache(store: Store, takes: tuple[TakeRecord, ...] = ()) -> MeasurementCache:
