@@ -347,3 +347,43 @@ def test_an_older_store_gains_the_table_and_keeps_its_rows(tmp_path, monkeypatch
     raw = sqlite3.connect(database)
     with pytest.raises(sqlite3.IntegrityError):                          # JSON only, checked by SQLite
         raw.execute("INSERT INTO take_measurements VALUES (?, ?, '1', '{}', 'not json', 'now')", ("a" * 64, "b" * 64))
+
+
+# --- takes measured on several threads ----------------------------------------------------------------
+
+def test_one_thread_and_several_give_the_same_assessment(fresh_demo_json):
+    # fresh_demo_json was measured with the default workers (one per core, at most 4)
+    survey = load_survey(DEMO / "survey.toml")
+    assert document(assess_survey(survey, workers=1)) == fresh_demo_json
+    assert document(assess_survey(survey, workers=4)) == fresh_demo_json
+
+
+@pytest.mark.parametrize("workers", [1, 4])
+def test_the_error_is_the_first_bad_take_in_survey_order_whatever_the_threads(tmp_path, workers):
+    from fieldtl.measure import measure_survey
+
+    survey = load_survey(DEMO / "survey.toml")
+    (tmp_path / "second.flac").write_bytes(b"not audio at all")
+    (tmp_path / "last.flac").write_bytes(b"")
+    takes = list(survey.takes)
+    takes[1] = dataclasses.replace(takes[1], file=tmp_path / "second.flac")
+    takes[-1] = dataclasses.replace(takes[-1], file=tmp_path / "last.flac")
+    with pytest.raises(InputError, match=r"^second\.flac: not a readable"):
+        measure_survey(dataclasses.replace(survey, takes=tuple(takes)), workers=workers)
+
+
+def test_progress_is_reported_from_the_calling_thread_only():
+    import threading
+
+    from fieldtl.measure import measure_survey
+
+    survey = load_survey(DEMO / "survey.toml")
+    threads, names = set(), set()
+
+    def progress(name, done):
+        threads.add(threading.get_ident())
+        names.add(name)
+
+    measure_survey(dataclasses.replace(survey, takes=survey.takes[:4]), progress=progress, workers=4)
+    assert threads == {threading.get_ident()}
+    assert names == {take.file.name for take in survey.takes[:4]}
