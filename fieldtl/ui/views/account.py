@@ -37,8 +37,8 @@ with common.fenced():
         chosen = st.selectbox("Project", [p.id for p in owned],
                               format_func=lambda i: next(p.name for p in owned if p.id == i))
         with st.form("fieldtl-grant", clear_on_submit=True):
-            name = st.text_input("Account name", max_chars=login.MAX_NAME_CHARS)
-            role = st.selectbox("Role", list(ROLE_CHOICES), format_func=ROLE_CHOICES.get)
+            name = st.text_input("Account name", max_chars=login.MAX_NAME_CHARS, key="fieldtl-grant-name")
+            role = st.selectbox("Role", list(ROLE_CHOICES), format_func=ROLE_CHOICES.get, key="fieldtl-grant-role")
             if st.form_submit_button("Give this role"):
                 try:
                     store.grant(chosen, name.strip(), role)
@@ -50,8 +50,9 @@ with common.fenced():
     if me.is_admin:
         st.subheader("New account")
         with st.form("fieldtl-new-account", clear_on_submit=True):
-            name = st.text_input("Name of the new account", max_chars=login.MAX_NAME_CHARS)
-            password = st.text_input("Its first password", type="password", max_chars=login.MAX_NAME_CHARS)
+            name = st.text_input("Name of the new account", max_chars=login.MAX_NAME_CHARS, key="fieldtl-new-name")
+            password = st.text_input("Its first password", type="password", max_chars=login.MAX_NAME_CHARS,
+                                     key="fieldtl-new-password")
             admin = st.checkbox("Administrator (adds accounts, sees every project)")
             if st.form_submit_button("Add the account"):
                 try:

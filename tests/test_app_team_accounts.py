@@ -1,0 +1,165 @@
+"""Accounts and roles through the app on a team server (AppTest against the real PostgreSQL that
+scripts/test starts, FIELDTL_TEST_PG_URL): a reviewer cannot add takes, an account without a role
+cannot open the project, an owner gives roles and a tester cannot, an administrator adds accounts,
+and a password is changed only with the old one. Checks read the server back through the core
+(ServerStore.login, role_on, list_takes), never through the page under test."""
+
+from pathlib import Path
+
+import pytest
+import streamlit as st
+from streamlit.testing.v1 import AppTest
+from test_store import AIRBORNE, wav_bytes
+from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
+
+from fieldtl.store.errors import PermissionDenied
+from fieldtl.store.location import open_store
+from fieldtl.ui import access
+
+APP = str(Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "app.py")
+PASSWORD = "invented-password-1"
+SECRET = "Invented project Wrenholt"
+
+
+@pytest.fixture
+def team(pg_url, tmp_path, monkeypatch):  # noqa: F811
+    """ann owns a project with one test; tom tests, rita reviews, olga has no role, ada administers."""
+    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "data"))
+    monkeypatch.setenv("FIELDTL_STORE_URL", pg_url)
+    monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
+    monkeypatch.setattr(access, "LIMITER", access.GuessLimiter())
+    with open_store(pg_url, audio_dir=tmp_path / "data" / "audio") as server:
+        for name in ("ann", "tom", "rita", "olga"):
+            server.create_account(name, PASSWORD)
+        server.create_account("ada", PASSWORD, admin=True)
+        ann = server.login("ann", PASSWORD)
+        project = ann.create_project(SECRET)
+        test = ann.create_test(project.id, AIRBORNE)
+        ann.grant(project.id, "tom", "tester")
+        ann.grant(project.id, "rita", "reviewer")
+        st.cache_resource.clear()
+        st.cache_data.clear()
+        yield dict(server=server, ann=ann, project=project, test=test)
+        st.cache_resource.clear()
+        st.cache_data.clear()
+
+
+def _ok(at):
+    assert not at.exception, [e.value for e in at.exception]
+    return at
+
+
+def _signed_in(name, password=PASSWORD):
+    at = AppTest.from_file(APP, default_timeout=180)
+    _ok(at.run())
+    assert [t.label for t in at.text_input] == ["Account", "Password"]
+    at.text_input[0].input(name)
+    at.text_input[1].input(password)
+    at.button[0].click().run()
+    return _ok(at)
+
+
+def _page(at, view):
+    _ok(at.switch_page(f"views/{view}").run())
+    return at
+
+
+def _button(at, label):
+    found = [b for b in at.button if b.label == label]
+    assert found, (label, [b.label for b in at.button])
+    return found[0]
+
+
+def _shown(at):
+    return " ".join([*(o for s in at.selectbox for o in s.options), *(b.label for b in at.button),
+                     *(m.value for m in at.markdown), *(e.value for e in at.error), *(i.value for i in at.info),
+                     *(s.value for s in at.success), *(t.value for t in at.title)])
+
+
+def test_a_reviewer_cannot_add_takes_through_the_app(team):
+    at = _signed_in("rita")
+    at.session_state["fieldtl.project_id"], at.session_state["fieldtl.test_id"] = team["project"].id, team["test"].id
+    _page(at, "takes.py")
+    assert at.title[0].value == "Takes"
+    at.get("file_uploader")[0].upload("s1.wav", wav_bytes(), "audio/wav")
+    _ok(at.run())
+    assert "reviewer role" in _shown(at) and "may not add take" in _shown(at)
+    assert team["ann"].list_takes(team["test"].id) == ()
+    tom = _signed_in("tom")                      # the same upload by a tester is stored: the refusal is the role's
+    tom.session_state["fieldtl.project_id"], tom.session_state["fieldtl.test_id"] = team["project"].id, team["test"].id
+    _page(tom, "takes.py").get("file_uploader")[0].upload("s1.wav", wav_bytes(), "audio/wav")
+    _ok(tom.run())
+    assert [t.original_name for t in team["ann"].list_takes(team["test"].id)] == ["s1.wav"]
+
+
+def test_an_account_without_a_role_cannot_open_the_project(team):
+    at = AppTest.from_file(APP, default_timeout=180)
+    at.query_params["project"], at.query_params["test"] = str(team["project"].id), str(team["test"].id)
+    _ok(at.run())
+    at.text_input[0].input("olga")
+    at.text_input[1].input(PASSWORD)
+    _ok(at.button[0].click().run())
+    assert at.title[0].value == "Projects"
+    assert "fieldtl.project_id" not in at.session_state          # the address opened nothing
+    assert SECRET not in _shown(at) and AIRBORNE.title not in _shown(at)
+    at.session_state["fieldtl.project_id"], at.session_state["fieldtl.test_id"] = team["project"].id, team["test"].id
+    for view in ("takes.py", "results.py", "setup.py"):
+        _page(at, view)
+        assert SECRET not in _shown(at) and AIRBORNE.title not in _shown(at), view
+        assert "Open a project and a test first." in _shown(at) or "Choose or create a project first." in _shown(at)
+    ann = AppTest.from_file(APP, default_timeout=180)        # the same address opens it for its owner
+    ann.query_params["project"], ann.query_params["test"] = str(team["project"].id), str(team["test"].id)
+    _ok(ann.run())
+    ann.text_input[0].input("ann")
+    ann.text_input[1].input(PASSWORD)
+    _ok(ann.button[0].click().run())
+    assert ann.session_state["fieldtl.project_id"] == team["project"].id and SECRET in _shown(ann)
+
+
+def test_an_owner_gives_and_the_role_applies(team):
+    at = _page(_signed_in("ann"), "account.py")
+    assert at.title[0].value == "Account and team"
+    at.selectbox[0].set_value(team["project"].id)
+    at.text_input(key="fieldtl-grant-name").input("olga")
+    at.selectbox(key="fieldtl-grant-role").set_value("reviewer")
+    _ok(_button(at, "Give this role").click().run())
+    assert "olga is now reviewer on this project." in _shown(at).replace("\\", "")
+    assert team["server"].login("olga", PASSWORD).role_on(team["project"].id) == "reviewer"
+
+
+def test_a_tester_cannot_give_roles(team):
+    at = _page(_signed_in("tom"), "account.py")
+    assert "You own no project, so you give no roles." in _shown(at)
+    assert not [b for b in at.button if b.label == "Give this role"]
+    with pytest.raises(PermissionDenied):        # and the core refuses the same account
+        team["server"].login("tom", PASSWORD).grant(team["project"].id, "olga", "owner")
+    assert team["server"].login("olga", PASSWORD).role_on(team["project"].id) is None
+
+
+def test_an_administrator_adds_an_account_and_others_see_no_such_form(team):
+    at = _page(_signed_in("ada"), "account.py")
+    at.text_input(key="fieldtl-new-name").input("nils")
+    at.text_input(key="fieldtl-new-password").input("invented-password-2")
+    _ok(_button(at, "Add the account").click().run())
+    assert "Account nils added." in _shown(at).replace("\\", "")
+    assert team["server"].login("nils", "invented-password-2").account.name == "nils"
+    ann = _page(_signed_in("ann"), "account.py")
+    assert not [b for b in ann.button if b.label == "Add the account"]
+
+
+def test_the_account_page_refuses_on_a_devices_own_store(team, monkeypatch):
+    monkeypatch.delenv("FIELDTL_STORE_URL")
+    monkeypatch.delenv("FIELDTL_ACCESS_CODE", raising=False)
+    st.cache_resource.clear()
+    at = AppTest.from_file(APP, default_timeout=180)
+    _page(_ok(at.run()), "account.py")
+    assert at.title[0].value == "Account and team"
+    assert at.info[0].value.startswith("Accounts belong to a team server.")
+    assert not at.text_input and not at.button
+
+
+def test_the_team_server_page_refuses_on_a_team_server(team):
+    at = _page(_signed_in("tom"), "team.py")
+    assert at.title[0].value == "Team server"
+    assert at.info[0].value.startswith("This app already works on the team server")
+    assert not at.text_input and not [b for b in at.button if b.label.startswith("Check")]
