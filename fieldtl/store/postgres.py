@@ -29,21 +29,20 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from fieldtl.errors import InputError
 from fieldtl.store.connection import default_data_dir
 from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.measurements import MeasurementRows
+from fieldtl.store.pg_accounts import MIN_PASSWORD_CHARS, Account, AccountRules, Member  # noqa: F401 - re-exported
 from fieldtl.store.pg_database import PgDatabase, Session
 from fieldtl.store.pg_schema import PROJECT_ROLES
 from fieldtl.store.schema import Project, check_text, utc_now
 from fieldtl.store.sqlite import AUDIO_FOLDER, DEFAULT_MAX_TAKE_BYTES, Store
-from fieldtl.validate import NAME_CHARS, NOTE_CHARS, choice, echo
+from fieldtl.validate import NOTE_CHARS, echo
 
 READ = frozenset(PROJECT_ROLES)
 WRITE = frozenset({"owner", "tester"})
 OWNER = frozenset({"owner"})
 SIGN = frozenset({"owner", "reviewer"})
-MIN_PASSWORD_CHARS = 10      # common practice (at least 8 is the usual floor for user-chosen passwords)
 
 # What each inherited Store method needs: (what its first argument names, roles allowed).
 RULES: dict[str, tuple[str, frozenset[str]]] = {
@@ -58,13 +57,6 @@ _PROJECT_OF = {"project": "SELECT id FROM projects WHERE id = ?",
                "test": "SELECT project_id FROM tests WHERE id = ?",
                "take": "SELECT t.project_id FROM takes k JOIN tests t ON t.id = k.test_id WHERE k.id = ?"}
 _NEED: ContextVar[tuple[str, str, int, frozenset[str]] | None] = ContextVar("fieldtl_store_need", default=None)
-
-
-@dataclass(frozen=True, slots=True)
-class Account:
-    id: int
-    name: str
-    is_admin: bool
 
 
 @dataclass(frozen=True, slots=True)
@@ -96,7 +88,7 @@ class PgMeasurementRows(MeasurementRows):
                        (key, sha256, analysis_version, settings_json, measurement_json, utc_now()))
 
 
-class ServerStore(Store):
+class ServerStore(AccountRules, Store):
     """A Store on PostgreSQL; ``account`` None is the server's own handle (no role checks)."""
 
     def __init__(self, database: PgDatabase, *, audio_dir: Path, max_take_bytes: int,
@@ -127,60 +119,7 @@ class ServerStore(Store):
             names = tuple(r[0] for r in db.execute("SELECT name FROM schema_migrations ORDER BY applied_at, name"))
         return len(names), names
 
-    # --- accounts ----------------------------------------------------------------------------------
-
-    def create_account(self, name: str, password: str, *, admin: bool = False) -> Account:
-        """A new account (server handle or an admin account only); the password is stored as an Argon2 hash."""
-        self._require_admin("create accounts")
-        check_text(name, "account name", max_chars=NAME_CHARS, empty=False)
-        _check_password(password)
-        with self._write() as db:
-            if db.execute("SELECT 1 FROM users WHERE name = ?", (name,)).fetchone() is not None:
-                raise InputError(f"account {echo(name)} exists already")
-            row = db.execute("INSERT INTO users (name, password_hash, is_admin, created_at) VALUES (?, ?, ?, ?) "
-                             "RETURNING id", (name, _hasher().hash(password), bool(admin), utc_now())).fetchone()
-        return Account(int(row[0]), name, bool(admin))
-
-    def login(self, name: str, password: str) -> ServerStore:
-        """The account's handle (sharing this store's pool); PermissionDenied if name or password is wrong."""
-        hasher = _hasher()
-        import argon2
-        with self._database.read() as db:
-            row = db.execute("SELECT id, password_hash, is_admin FROM users WHERE name = ?", (name,)).fetchone()
-        try:
-            if row is None:
-                hasher.hash(password)         # as slow as a wrong password: names cannot be probed by timing
-                raise argon2.exceptions.VerificationError
-            hasher.verify(row[1], password)
-        except argon2.exceptions.VerificationError:
-            raise PermissionDenied("account name or password not recognised") from None
-        return ServerStore(self._database, audio_dir=self.audio_dir, max_take_bytes=self.max_take_bytes,  # type: ignore[arg-type]
-                           account=Account(int(row[0]), name, bool(row[2])), owns_database=False)
-
-    def grant(self, project_id: int, account_name: str, role: str) -> None:
-        """Give ``account_name`` ``role`` on the project (replacing its role there); owners and admins only."""
-        choice(role, PROJECT_ROLES, "role")
-        token = _NEED.set(("grant", "project", project_id, OWNER))
-        try:
-            with self._write() as db:
-                user = db.execute("SELECT id FROM users WHERE name = ?", (account_name,)).fetchone()
-                if user is None:
-                    raise InputError(f"no account named {echo(account_name)}")
-                self._project(db, project_id)
-                db.execute("INSERT INTO project_roles (project_id, user_id, role) VALUES (?, ?, ?) "
-                           "ON CONFLICT (project_id, user_id) DO UPDATE SET role = EXCLUDED.role",
-                           (project_id, user[0], role))
-        finally:
-            _NEED.reset(token)
-
-    def role_on(self, project_id: int) -> str | None:
-        """This account's role on the project (None: no role; the server handle: "owner")."""
-        if self.account is None:
-            return "owner"
-        with self._database.read() as db:
-            row = db.execute("SELECT role FROM project_roles WHERE project_id = ? AND user_id = ?",
-                             (project_id, self.account.id)).fetchone()
-        return None if row is None else row[0]
+    # --- what an account sees (accounts and roles: fieldtl.store.pg_accounts) -----------------------
 
     def list_projects(self) -> tuple[Project, ...]:
         """The projects this account has a role on (all for the server handle and admins)."""
@@ -268,11 +207,6 @@ class ServerStore(Store):
             raise PermissionDenied(f"account {echo(self.account.name)} has {held} on project {found[0]} and "
                                    f"may not {what.replace('_', ' ')}")
 
-    def _require_admin(self, what: str) -> None:
-        if self.account is not None and not self.account.is_admin:
-            raise PermissionDenied(f"account {echo(self.account.name)} may not {what} (server administrators only)")
-
-
 def _guarded(name: str, kind: str, roles: frozenset[str]) -> Any:
     base = getattr(Store, name)
 
@@ -288,19 +222,3 @@ def _guarded(name: str, kind: str, roles: frozenset[str]) -> Any:
 
 for _name, (_kind, _roles) in RULES.items():
     setattr(ServerStore, _name, _guarded(_name, _kind, _roles))
-
-
-def _check_password(password: Any) -> None:
-    check_text(password, "password", max_chars=NAME_CHARS, empty=False)
-    if len(password) < MIN_PASSWORD_CHARS:
-        raise InputError(f"password: at least {MIN_PASSWORD_CHARS} characters, please")
-
-
-@functools.cache
-def _hasher() -> Any:
-    """Argon2id with argon2-cffi's current default parameters (RFC 9106)."""
-    try:
-        import argon2
-    except ImportError:
-        raise InputError("accounts need the argon2-cffi package (pip install 'fieldtl[team]')") from None
-    return argon2.PasswordHasher()
