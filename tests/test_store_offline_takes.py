@@ -149,6 +149,33 @@ def test_a_take_changed_here_but_removed_on_the_server_is_a_conflict(site):
     assert again.speaker == 2 and again.sha256 == takes["s310.wav"].sha256
 
 
+def test_server_keeps_its_removal_of_a_take_changed_here_when_chosen(site):
+    tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
+    local, local_a, takes = _checked_out(site)
+    ann.delete_take(_by_name(ann.list_takes(site["a"].id), "s310.wav").id)
+    laptop.update_take(takes["s310.wav"].id, role="source", speaker=2)
+    done = push(laptop, tom, local, resolve={local_a.id: "server"})
+    assert (done.pushed, done.takes_added, done.takes_removed) == (True, 0, 0)
+    assert [t.original_name for t in laptop.list_takes(local_a.id)] == ["s300.wav"]     # removed here too
+    assert [t.original_name for t in ann.list_takes(site["a"].id)] == ["s300.wav"]
+
+
+def test_the_same_recording_added_on_both_sides_is_one_take(site):
+    tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
+    local, local_a, _ = _checked_out(site)
+    same, other = wav_bytes(frequency_hz=1100.0), wav_bytes(frequency_hz=1200.0)
+    laptop.add_take(local_a.id, data=same, original_name="both.wav", role="receiving", speaker=1)
+    laptop.add_take(local_a.id, data=other, original_name="differs.wav", role="receiving", speaker=1)
+    ann.add_take(site["a"].id, data=same, original_name="both.wav", role="receiving", speaker=1)
+    ann.add_take(site["a"].id, data=other, original_name="differs.wav", role="receiving", speaker=2)
+    (conflict,) = push(laptop, tom, local).conflicts                   # same audio, different position
+    assert conflict.differences == (FieldDifference("differs.wav: position", "1", "2"),)
+    done = push(laptop, tom, local, resolve={local_a.id: "mine"})
+    assert (done.takes_added, done.takes_updated) == (0, 1)
+    names = sorted((t.original_name, t.speaker) for t in ann.list_takes(site["a"].id))
+    assert names == [("both.wav", 1), ("differs.wav", 1), ("s300.wav", 1), ("s310.wav", 1)]
+
+
 def test_a_take_unchanged_here_stays_removed_when_the_server_removed_it(site):
     tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
     local, _, _ = _checked_out(site)
