@@ -116,24 +116,64 @@ def test_an_account_without_a_role_cannot_open_the_project(team):
     assert ann.session_state["fieldtl.project_id"] == team["project"].id and SECRET in _shown(ann)
 
 
-def test_an_owner_gives_and_the_role_applies(team):
+def _members(at):
+    return dict(zip(at.table[0].value["Account"], at.table[0].value["Role"], strict=True))
+
+
+def test_an_owner_gives_and_takes_back_a_role_and_it_applies(team):
     at = _page(_signed_in("ann"), "account.py")
     assert at.title[0].value == "Account and team"
-    at.selectbox[0].set_value(team["project"].id)
-    at.text_input(key="fieldtl-grant-name").input("olga")
+    assert _members(at) == {"ann": "owner", "rita": "reviewer", "tom": "tester"}
+    at.selectbox(key="fieldtl-grant-name").set_value("olga")
     at.selectbox(key="fieldtl-grant-role").set_value("reviewer")
     _ok(_button(at, "Give this role").click().run())
     assert "olga is now reviewer on this project." in _shown(at).replace("\\", "")
-    assert team["server"].login("olga", PASSWORD).role_on(team["project"].id) == "reviewer"
+    assert _members(at)["olga"] == "reviewer"
+    olga = team["server"].login("olga", PASSWORD)
+    assert olga.role_on(team["project"].id) == "reviewer" and [p.name for p in olga.list_projects()] == [SECRET]
+    at.selectbox(key="fieldtl-revoke-name").set_value("olga")
+    _ok(_button(at, "Take the role away").click().run())
+    assert "olga" not in _members(at) and olga.role_on(team["project"].id) is None
+    at.selectbox(key="fieldtl-revoke-name").set_value("ann")          # the last owner stays
+    _ok(_button(at, "Take the role away").click().run())
+    assert "only owner" in at.error[0].value and _members(at)["ann"] == "owner"
 
 
-def test_a_tester_cannot_give_roles(team):
+def test_a_tester_sees_the_members_but_cannot_give_roles(team):
     at = _page(_signed_in("tom"), "account.py")
-    assert "You own no project, so you give no roles." in _shown(at)
-    assert not [b for b in at.button if b.label == "Give this role"]
+    assert _members(at) == {"ann": "owner", "rita": "reviewer", "tom": "tester"}
+    assert "Only the project's owners give and take back roles." in [c.value for c in at.caption]
+    assert not [b for b in at.button if b.label in ("Give this role", "Take the role away")]
     with pytest.raises(PermissionDenied):        # and the core refuses the same account
         team["server"].login("tom", PASSWORD).grant(team["project"].id, "olga", "owner")
     assert team["server"].login("olga", PASSWORD).role_on(team["project"].id) is None
+
+
+def _change_password(at, current, new, again=None):
+    fields = {t.label: t for t in at.text_input}
+    fields["Current password"].input(current)
+    fields["New password"].input(new)
+    fields["New password again"].input(new if again is None else again)
+    return _ok(_button(at, "Change password").click().run())
+
+
+def test_a_password_changes_only_with_the_current_one(team):
+    server, new = team["server"], "invented-password-9"
+    at = _change_password(_page(_signed_in("tom"), "account.py"), PASSWORD + "x", new)
+    assert at.error[0].value == "The current password is not right. The password is unchanged."
+    assert server.login("tom", PASSWORD).account.name == "tom"
+    with pytest.raises(PermissionDenied):
+        server.login("tom", new)
+    at = _change_password(at, PASSWORD, new, again=new + "x")
+    assert at.error[0].value == "The two new passwords differ. The password is unchanged."
+    with pytest.raises(PermissionDenied):
+        server.login("tom", new)
+    at = _change_password(at, PASSWORD, new)
+    assert at.success[0].value == "Password changed. Use the new one next time you sign in."
+    assert server.login("tom", new).account.name == "tom"
+    with pytest.raises(PermissionDenied):
+        server.login("tom", PASSWORD)
+    assert _signed_in("tom", new).title[0].value == "Projects"
 
 
 def test_an_administrator_adds_an_account_and_others_see_no_such_form(team):

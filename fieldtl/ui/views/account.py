@@ -1,5 +1,6 @@
-"""Account and team: on a team server, your own account (password, sign out), the members of the
-projects you own (grant and take back roles), and new accounts (administrators only).
+"""Account and team: on a team server, your own account (password, sign out), the members of each
+project you have a role on (its owners give and take back roles), and new accounts
+(administrators only).
 
 Only on a team server; with a device's own store this page says so and stops. Every change goes
 through the signed-in account's store handle, so the server's role checks decide (a refusal is
@@ -9,10 +10,12 @@ one line). Passwords typed here are passed on and never kept.
 import streamlit as st
 
 from fieldtl.errors import FieldTLError
-from fieldtl.ui import cached, common, gate, login
+from fieldtl.store.errors import PermissionDenied
+from fieldtl.ui import access, cached, common, gate, login
 
 ROLE_CHOICES = {"tester": "Tester: adds and changes tests and takes", "reviewer": "Reviewer: reads and signs off",
                 "owner": "Owner: everything, and gives roles"}
+DONE = "fieldtl.members_done"     # Session State: what the last change of roles did, shown after the rerun
 
 gate.require_access()
 with common.fenced():
@@ -29,23 +32,67 @@ with common.fenced():
         login.sign_out()
         st.rerun()
 
-    st.subheader("Project members")
-    owned = [p for p in store.list_projects() if me.is_admin or store.role_on(p.id) == "owner"]
-    if not owned:
-        st.write("You own no project, so you give no roles. A project's owner gives them.")
-    else:
-        chosen = st.selectbox("Project", [p.id for p in owned],
-                              format_func=lambda i: next(p.name for p in owned if p.id == i))
-        with st.form("fieldtl-grant", clear_on_submit=True):
-            name = st.text_input("Account name", max_chars=login.MAX_NAME_CHARS, key="fieldtl-grant-name")
-            role = st.selectbox("Role", list(ROLE_CHOICES), format_func=ROLE_CHOICES.get, key="fieldtl-grant-role")
-            if st.form_submit_button("Give this role"):
+    with st.expander("Change your password"):
+        with st.form("fieldtl-password", clear_on_submit=True):
+            current = st.text_input("Current password", type="password", max_chars=login.MAX_NAME_CHARS)
+            new = st.text_input("New password", type="password", max_chars=login.MAX_NAME_CHARS)
+            again = st.text_input("New password again", type="password", max_chars=login.MAX_NAME_CHARS)
+            changing = st.form_submit_button("Change password")
+        if changing:
+            keys = gate.client_keys()
+            wait_s = access.LIMITER.wait_s(keys)
+            if wait_s > 0:
+                st.error(f"Too many wrong passwords from here: the next try is looked at in "
+                         f"{access.describe_wait(wait_s)}. The password is unchanged.")
+            elif new != again:
+                st.error("The two new passwords differ. The password is unchanged.")
+            else:
                 try:
-                    store.grant(chosen, name.strip(), role)
+                    store.change_password(current, new)
+                except PermissionDenied:
+                    access.LIMITER.failed(keys)
+                    st.error("The current password is not right. The password is unchanged.")
                 except FieldTLError as exc:
-                    st.error(common.md(exc))
+                    st.error(f"{common.md(exc)}. The password is unchanged.")
                 else:
-                    st.success(f"{common.md(name.strip())} is now {role} on this project.")
+                    access.LIMITER.succeeded(keys[:1])
+                    st.success("Password changed. Use the new one next time you sign in.")
+
+    st.subheader("Project members")
+    projects = store.list_projects()
+    if not projects:
+        st.write("You have no role on any project yet. A project's owner gives roles.")
+    else:
+        chosen = st.selectbox("Project", [p.id for p in projects], key="fieldtl-members-project",
+                              format_func=lambda i: next(p.name for p in projects if p.id == i))
+        members = store.members(chosen)
+        st.table([{"Account": m.name, "Role": m.role} for m in members])
+        if st.session_state.get(DONE):
+            st.success(st.session_state.pop(DONE))
+        if not (me.is_admin or store.role_on(chosen) == "owner"):
+            st.caption("Only the project's owners give and take back roles.")
+        else:
+            with st.form("fieldtl-grant", clear_on_submit=True):
+                name = st.selectbox("Account", [a.name for a in store.accounts()], key="fieldtl-grant-name")
+                role = st.selectbox("Role", list(ROLE_CHOICES), format_func=ROLE_CHOICES.get, key="fieldtl-grant-role")
+                if st.form_submit_button("Give this role"):
+                    try:
+                        store.grant(chosen, name, role)
+                    except FieldTLError as exc:
+                        st.error(common.md(exc))
+                    else:
+                        st.session_state[DONE] = f"{common.md(name)} is now {role} on this project."
+                        st.rerun()
+            with st.form("fieldtl-revoke", clear_on_submit=True):
+                gone = st.selectbox("Member", [m.name for m in members], key="fieldtl-revoke-name")
+                if st.form_submit_button("Take the role away"):
+                    try:
+                        store.revoke(chosen, gone)
+                    except FieldTLError as exc:
+                        st.error(common.md(exc))
+                    else:
+                        st.session_state[DONE] = f"{common.md(gone)} no longer has a role on this project."
+                        st.rerun()
 
     if me.is_admin:
         st.subheader("New account")
