@@ -3,6 +3,8 @@
     fieldtl team init --store postgresql://fieldtl@localhost/fieldtl --owner ann
     fieldtl team account tom --store ...            # a new account (asks its password)
     fieldtl team grant 3 tom tester --store ...      # tom becomes a tester on project 3
+    fieldtl team revoke 3 tom --store ...            # tom no longer has a role on project 3
+    fieldtl team members 3 --store ...               # who has which role on project 3
     fieldtl team checkout 3 --account tom            # project 3 into this device's own store
     fieldtl team push 7 --account tom [--mine 12] [--server 13]   # local project 7 back to the server
 
@@ -46,6 +48,11 @@ def add_team_options(sub: argparse._SubParsersAction) -> argparse.ArgumentParser
     grant.add_argument("project_id", type=int)
     grant.add_argument("name")
     grant.add_argument("role", choices=PROJECT_ROLES)
+    revoke = actions.add_parser("revoke", help="take an account's role on a project away")
+    revoke.add_argument("project_id", type=int)
+    revoke.add_argument("name")
+    members = actions.add_parser("members", help="list a project's accounts and their roles")
+    members.add_argument("project_id", type=int)
     checkout = actions.add_parser("checkout", help="copy a server project into this device's store to work offline")
     checkout.add_argument("project_id", type=int, help="the project's id on the server")
     push = actions.add_parser("push", help="send a checked-out project back to the server (all or nothing)")
@@ -57,7 +64,7 @@ def add_team_options(sub: argparse._SubParsersAction) -> argparse.ArgumentParser
     for parser in (checkout, push):
         parser.add_argument("--account", required=True, help="your account on the server")
         parser.add_argument("--data-dir", type=Path, help="folder of this device's store (default: your user data folder)")
-    for parser in (init, account, grant, checkout, push):
+    for parser in (init, account, grant, revoke, members, checkout, push):
         parser.add_argument("--store", help=f"postgresql:// URL of the server (default: {STORE_URL_VARIABLE})")
     return team
 
@@ -83,6 +90,12 @@ def run_team(args: argparse.Namespace) -> int:
         elif args.team_action == "grant":
             server.grant(args.project_id, args.name, args.role)
             print(f"{args.name} is now {args.role} on project {args.project_id}")
+        elif args.team_action == "revoke":
+            server.revoke(args.project_id, args.name)
+            print(f"{args.name} has no role on project {args.project_id} now")
+        elif args.team_action == "members":
+            for member in server.members(args.project_id):
+                print(f"{member.name}: {member.role}" + (" (administrator)" if member.is_admin else ""))
         else:
             return _offline(args, server.login(args.account, _password(args.account)))
     return 0

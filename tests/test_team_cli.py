@@ -35,6 +35,13 @@ def test_init_creates_the_schema_and_the_first_administrator(pg_url, monkeypatch
         assert tom.role_on(project.id) == "reviewer" and not tom.account.is_admin
         with pytest.raises(PermissionDenied):
             tom.create_test(project.id, AIRBORNE)
+        capsys.readouterr()
+        assert main(["team", "members", str(project.id)]) == 0
+        assert capsys.readouterr().out.splitlines() == ["ann: owner (administrator)", "tom: reviewer"]
+        assert main(["team", "revoke", str(project.id), "tom"]) == 0
+        assert tom.role_on(project.id) is None
+        assert main(["team", "revoke", str(project.id), "ann"]) == 2                # the only owner stays
+        assert "is the only owner of project" in capsys.readouterr().err
 
 
 def test_bad_server_settings_are_one_line_exit_2(monkeypatch, capsys):
