@@ -140,7 +140,10 @@ def _server_takes(site):
 
 
 def test_check_out_brings_the_project_and_its_audio_to_this_device(site):
-    _checked_out(site)
+    at = _checked_out(site).run()
+    assert any(c.value.startswith("Already checked out here on ") for c in at.caption)   # a second copy is named so
+    listed = [m.value for m in at.markdown if m.value.startswith("**Invented project Harrowgate**")]
+    assert len(listed) == 1 and "checked out " in listed[0]
     with Store.open(site["laptop"]) as laptop:
         projects = laptop.list_projects()
         assert [p.name for p in projects] == ["Invented project Harrowgate"]
@@ -194,6 +197,8 @@ def test_a_reviewer_cannot_add_takes_through_a_push(site):
         local_a = _local_test(laptop, AIRBORNE.title)
         laptop.add_take(local_a.id, data=wav_bytes(frequency_hz=700.0), original_name="r.wav", role="receiving")
     before = site["ann"].snapshot(site["project"].id)
+    assert any(c.value.startswith("Your role on this project (reviewer: reads and signs off) does not allow sending")
+               for c in at.caption)
     _button(at, "Check what would be sent").click().run()
     _button(at, "Send to the team server").click().run()
     assert not at.exception, [e.value for e in at.exception]

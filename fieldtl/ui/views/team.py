@@ -16,6 +16,12 @@ CHOICES = {"mine": "Keep mine", "server": "Keep the server's"}
 PREVIEWS = "fieldtl.push_previews"       # Session State: local project id → the last preview drawn
 OUTCOMES = "fieldtl.push_outcomes"       # Session State: local project id → (kind, sentence) after a push
 
+
+
+def _when(iso_utc: str) -> str:
+    return f"{iso_utc[:16].replace('T', ' ')} UTC"
+
+
 gate.require_access()
 with common.fenced():
     st.title("Team server")
@@ -69,6 +75,11 @@ with common.fenced():
             chosen = st.selectbox("Project on the team server", [p.id for p in projects],
                                   format_func=lambda i: next(f"{p.name} ({ROLE_WORDS.get(roles[i], 'administrator')})"
                                                              for p in projects if p.id == i))
+            earlier = [r for r in offline.checked_out_projects(local)
+                       if r.server == link.server and r.server_project_id == chosen]
+            if earlier:
+                st.caption(f"Already checked out here on {_when(earlier[0].checked_out_at)}; checking it out "
+                           "again makes a second copy on this device.")
             if st.button("Check out to this device"):
                 try:
                     local_id = offline.check_out(account, chosen, local)
@@ -88,13 +99,17 @@ with common.fenced():
         pid = record.local_project_id
         with st.container(border=True):
             st.write(f"**{common.md(local.get_project(pid).name)}** — from {common.md(record.server)}, "
-                     f"checked out {record.checked_out_at[:16].replace('T', ' ')} UTC")
+                     f"checked out {_when(record.checked_out_at)}")
             kind, sentence = outcomes.get(pid, (None, ""))
             if kind is not None:
                 getattr(st, kind)(sentence)
             if link is None or link.server != record.server:
                 st.caption(f"Sign in to {common.md(record.server)} above to send this project back.")
                 continue
+            role = link.account.role_on(record.server_project_id)
+            if role not in ("owner", "tester") and not link.account.account.is_admin:
+                st.caption(f"Your role on this project ({ROLE_WORDS.get(role, 'none')}) does not allow sending "
+                           "changes; the team server will refuse them.")
             if st.button("Check what would be sent", key=f"preview-{pid}"):
                 outcomes.pop(pid, None)
                 try:
