@@ -200,3 +200,17 @@ def test_a_push_that_fails_half_way_sends_none_of_it(site):
     assert _server_state(ann, site["project"].id) == before             # not even test A's new take
     assert ann.get_take(bg.id).role == "background"
     assert [t.original_name for t in laptop.list_takes(local_a.id)][-1] == "new.wav"   # nothing lost here
+
+
+def test_a_push_copies_only_audio_the_server_lacks(site, monkeypatch):
+    import fieldtl.store.offline as offline
+    tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
+    local, local_a, _ = _checked_out(site)
+    laptop.add_take(local_a.id, data=wav_bytes(frequency_hz=1300.0), original_name="new.wav", role="receiving")
+    copied = []
+    real_copy = offline.copy_checked
+    monkeypatch.setattr(offline, "copy_checked", lambda source, *a: copied.append(source.name) or real_copy(source, *a))
+    assert push(laptop, tom, local).takes_added == 1
+    new = _by_name(ann.list_takes(site["a"].id), "new.wav")
+    assert copied == [new.file_name]                                    # not the two checked-out recordings
+    assert _server_state(ann, site["project"].id)                       # every stored file matches its SHA-256

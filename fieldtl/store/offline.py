@@ -21,7 +21,8 @@ server copy with its fields as they were). :func:`checked_out_projects` lists th
   ``resolve={local test id: "mine" | "server"}`` ("server" also updates this device's copy);
 * tests made offline are added; a test deleted on the server meanwhile is added again.
 
-A push killed half-way leaves the server as it was (the transaction rolls back; audio files
+Only audio the server's folder lacks is copied, before the transaction (which then only renames
+files into place). A push killed half-way leaves the server as it was (the transaction rolls back; audio files
 placed for it are unreferenced until ``clean_files``); it can simply be repeated.
 """
 
@@ -32,7 +33,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from fieldtl.errors import InputError
+from fieldtl.errors import InputError, StoreError
 from fieldtl.store import rows
 from fieldtl.store.files import place_file
 from fieldtl.store.offline_plan import (FieldDifference, SettingsConflict, TestWork, plan, settings_of,
@@ -126,14 +127,19 @@ def push(local: Store, server: ServerStore, local_project_id: int, *,
     incoming: dict[str, Path] = {}
     placed: list[Path] = []
     try:
-        for take in mine.takes:             # copied before the transaction: it only renames them
-            if take.file_name not in incoming:
+        for take in mine.takes:     # copied before the transaction (it only renames them), unless there already
+            if take.file_name not in incoming and not _on_server(server, take, local.take_path(take)):
                 incoming[take.file_name] = copy_checked(local.take_path(take), server.incoming_path(), take.sha256)
         with server._guard("push", "project", server_project, WRITE), server._write() as db:
             server._project(db, server_project)
             conflicts, work = plan(db, mine, record, resolve)
             if conflicts:
                 return PushResult(False, tuple(conflicts), 0, 0, 0)
+            gone = {t.file_name for w in work for t in w.server_adds if t.file_name not in incoming
+                    and not _on_server(server, t, local.take_path(t))}
+            if gone:                 # removed by a clean meanwhile (under the write lock nothing goes now)
+                raise StoreError(f"push: the audio of {len(gone)} take(s) left the server's audio folder while "
+                                 "the push was starting; nothing was sent, push again")
             try:
                 for name, path in incoming.items():
                     if place_file(server.audio_dir, path, name):
@@ -217,6 +223,15 @@ def _apply_here(local: Store, server: ServerStore, work: list[TestWork]) -> None
     finally:
         for path in files.values():
             path.unlink(missing_ok=True)
+
+
+def _on_server(server: ServerStore, take: Any, here: Path) -> bool:
+    """The server's audio folder holds the take's audio already (content-named, of the same size)."""
+    there = server.audio_dir / take.file_name
+    try:
+        return there.is_file() and there.stat().st_size == here.stat().st_size
+    except OSError:
+        return False
 
 
 def _counts(work: list[TestWork]) -> tuple[int, int, int, int, int]:
