@@ -5,6 +5,7 @@
     fieldtl team grant 3 tom tester --store ...      # tom becomes a tester on project 3
     fieldtl team revoke 3 tom --store ...            # tom no longer has a role on project 3
     fieldtl team members 3 --store ...               # who has which role on project 3
+    fieldtl team password --account tom              # tom changes his own password
     fieldtl team checkout 3 --account tom            # project 3 into this device's own store
     fieldtl team push 7 --account tom [--mine 12] [--server 13]   # local project 7 back to the server
 
@@ -53,6 +54,7 @@ def add_team_options(sub: argparse._SubParsersAction) -> argparse.ArgumentParser
     revoke.add_argument("name")
     members = actions.add_parser("members", help="list a project's accounts and their roles")
     members.add_argument("project_id", type=int)
+    password = actions.add_parser("password", help="change your own password (asks the current one first)")
     checkout = actions.add_parser("checkout", help="copy a server project into this device's store to work offline")
     checkout.add_argument("project_id", type=int, help="the project's id on the server")
     push = actions.add_parser("push", help="send a checked-out project back to the server (all or nothing)")
@@ -61,10 +63,11 @@ def add_team_options(sub: argparse._SubParsersAction) -> argparse.ArgumentParser
                       help="settings conflict on this local test: keep this device's settings")
     push.add_argument("--server", type=int, action="append", default=[], metavar="TEST",
                       help="settings conflict on this local test: keep the server's settings")
+    password.add_argument("--account", required=True, help="your account on the server")
     for parser in (checkout, push):
         parser.add_argument("--account", required=True, help="your account on the server")
         parser.add_argument("--data-dir", type=Path, help="folder of this device's store (default: your user data folder)")
-    for parser in (init, account, grant, revoke, members, checkout, push):
+    for parser in (init, account, grant, revoke, members, password, checkout, push):
         parser.add_argument("--store", help=f"postgresql:// URL of the server (default: {STORE_URL_VARIABLE})")
     return team
 
@@ -96,6 +99,10 @@ def run_team(args: argparse.Namespace) -> int:
         elif args.team_action == "members":
             for member in server.members(args.project_id):
                 print(f"{member.name}: {member.role}" + (" (administrator)" if member.is_admin else ""))
+        elif args.team_action == "password":
+            current = _password(args.account)
+            server.login(args.account, current).change_password(current, _new_password(args.account))
+            print(f"password of {args.account} changed")
         else:
             return _offline(args, server.login(args.account, _password(args.account)))
     return 0

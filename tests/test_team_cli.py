@@ -42,6 +42,12 @@ def test_init_creates_the_schema_and_the_first_administrator(pg_url, monkeypatch
         assert tom.role_on(project.id) is None
         assert main(["team", "revoke", str(project.id), "ann"]) == 2                # the only owner stays
         assert "is the only owner of project" in capsys.readouterr().err
+        monkeypatch.setenv("FIELDTL_PASSWORD", "invented-password-1")
+        monkeypatch.setenv("FIELDTL_NEW_PASSWORD", "invented-password-2")
+        assert main(["team", "password", "--account", "tom"]) == 0
+        assert server.login("tom", "invented-password-2").account.name == "tom"
+        assert main(["team", "password", "--account", "tom"]) == 2                # the current one is wrong now
+        assert capsys.readouterr().err.strip() == "fieldtl: account name or password not recognised"
 
 
 def test_bad_server_settings_are_one_line_exit_2(monkeypatch, capsys):
