@@ -214,3 +214,16 @@ def test_a_push_copies_only_audio_the_server_lacks(site, monkeypatch):
     new = _by_name(ann.list_takes(site["a"].id), "new.wav")
     assert copied == [new.file_name]                                    # not the two checked-out recordings
     assert _server_state(ann, site["project"].id)                       # every stored file matches its SHA-256
+
+
+def test_a_test_type_changed_here_must_suit_the_takes_added_on_the_server(site):
+    tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
+    ann.add_take(site["b"].id, data=wav_bytes(frequency_hz=1400.0), original_name="bg.wav", role="background")
+    local, _, _ = _checked_out(site)
+    local_b = _local_test(laptop, local, "Invented room C to room D")
+    laptop.update_test(local_b.id, replace(site["b"].setup, test_type="impact"))        # bg.wav suits impact too
+    ann.add_take(site["b"].id, data=wav_bytes(frequency_hz=1500.0), original_name="src.wav", role="source")
+    before = _server_state(ann, site["project"].id)
+    with pytest.raises(InputError, match=r"^test 'Invented room C to room D': take 'src.wav': .*source"):
+        push(laptop, tom, local)                                          # a source take in an impact test
+    assert _server_state(ann, site["project"].id) == before

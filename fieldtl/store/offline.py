@@ -189,6 +189,11 @@ def _apply_on_server(db: Any, work: list[TestWork], server_project: int) -> None
         for take in w.server_adds:
             row = {c: getattr(take, c) for c in rows.TAKE_COLUMNS} | {"test_id": w.server_test_id}
             w.links[str(take.id)]["server_take_id"] = rows.insert_take(db, row)
+        if w.server_test is not None and test_type != w.server_test.setup.test_type:   # every take must suit it
+            for row in db.execute("SELECT * FROM takes WHERE test_id = ?", (w.server_test_id,)).fetchall():
+                take = rows.row_to_take(row)
+                check_take_fields(test_type, **rows.take_fields(take),
+                                  where=f"test {echo(w.test.setup.title)}: take {echo(take.original_name)}")
     rows.touch_project(db, server_project, now)
 
 
