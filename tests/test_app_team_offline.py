@@ -212,6 +212,13 @@ def test_an_account_without_a_role_is_offered_nothing_to_check_out(site):
     assert "Harrowgate" not in _shown(at)
 
 
+def test_the_password_is_not_kept_after_signing_in(site):
+    at = _signed_in(site, "tom")
+    assert teamlink.LINK_KEY in at.session_state
+    assert PASSWORD not in repr(at.session_state.to_dict())                       # our keys and keyed widgets
+    assert PASSWORD not in repr(at.session_state._state.get_widget_states())      # and every widget's value
+
+
 def test_a_wrong_password_signs_nothing_in(site):
     at = _signed_in(site, "tom", PASSWORD + "x")
     assert at.error[0].value == "Account name or password not recognised."
