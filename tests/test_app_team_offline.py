@@ -125,7 +125,7 @@ def _preview_with_conflict(at):
     assert not at.exception, [e.value for e in at.exception]
     shown = _shown(at)
     # A's new take waits with A's choice; the new test and its take are counted
-    assert "Would be added: 1 test, 1 take. Would be updated: 0 tests (settings), 0 takes (details)." in shown
+    assert "Would be added: 1 test, 1 take.  \nWould be updated: 0 tests (settings), 0 takes (details).  \n" in shown
     assert "1 test changed here and on the team server" in shown
     rows = at.table[0].value
     assert list(rows.columns) == ["What", "On this device", "On the team server"]

@@ -108,18 +108,19 @@ def _n(count: int, word: str) -> str:
 
 
 def preview_words(preview) -> str:  # preview: fieldtl.store.offline.PushPreview
-    """What a push would do, in counts: added, updated, removed (and the tests waiting for a choice)."""
+    """What a push would do, in counts, one line each: added, updated, removed (and the tests waiting
+    for a choice). Markdown line breaks between the lines."""
     if not preview.conflicts and not any((preview.tests_to_add, preview.takes_to_add, preview.tests_to_update,
                                           preview.takes_to_update, preview.takes_to_remove)):
         return "Nothing to send: the team server already has everything of this project."
-    words = (f"Would be added: {_n(preview.tests_to_add, 'test')}, {_n(preview.takes_to_add, 'take')}. "
+    lines = [f"Would be added: {_n(preview.tests_to_add, 'test')}, {_n(preview.takes_to_add, 'take')}.",
              f"Would be updated: {_n(preview.tests_to_update, 'test')} (settings), "
-             f"{_n(preview.takes_to_update, 'take')} (details). "
-             f"Would be removed: {_n(preview.takes_to_remove, 'take')} (removed on this device).")
+             f"{_n(preview.takes_to_update, 'take')} (details).",
+             f"Would be removed: {_n(preview.takes_to_remove, 'take')} (removed on this device)."]
     if preview.conflicts:
-        words += (f" {_n(len(preview.conflicts), 'test')} changed here and on the team server: choose below "
-                  "what to keep (not counted until then).")
-    return words
+        lines.append(f"{_n(len(preview.conflicts), 'test')} changed here and on the team server: choose below "
+                     "what to keep (not counted until then).")
+    return "  \n".join(lines)
 
 
 def result_words(result) -> str:  # result: fieldtl.store.offline.PushResult

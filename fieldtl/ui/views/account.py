@@ -28,7 +28,7 @@ with common.fenced():
     store = cached.store()
     me = store.account
     st.write(f"Signed in as **{common.md(me.name)}**" + (" (administrator)." if me.is_admin else "."))
-    if st.button("Sign out"):
+    if st.button("Sign out", width="stretch"):
         login.sign_out()
         st.rerun()
 
@@ -37,7 +37,7 @@ with common.fenced():
             current = st.text_input("Current password", type="password", max_chars=login.MAX_NAME_CHARS)
             new = st.text_input("New password", type="password", max_chars=login.MAX_NAME_CHARS)
             again = st.text_input("New password again", type="password", max_chars=login.MAX_NAME_CHARS)
-            changing = st.form_submit_button("Change password")
+            changing = st.form_submit_button("Change password", width="stretch")
         if changing:
             keys = gate.client_keys()
             wait_s = access.LIMITER.wait_s(keys)
@@ -75,7 +75,7 @@ with common.fenced():
             with st.form("fieldtl-grant", clear_on_submit=True):
                 name = st.selectbox("Account", [a.name for a in store.accounts()], key="fieldtl-grant-name")
                 role = st.selectbox("Role", list(ROLE_CHOICES), format_func=ROLE_CHOICES.get, key="fieldtl-grant-role")
-                if st.form_submit_button("Give this role"):
+                if st.form_submit_button("Give this role", width="stretch"):
                     try:
                         store.grant(chosen, name, role)
                     except FieldTLError as exc:
@@ -85,7 +85,7 @@ with common.fenced():
                         st.rerun()
             with st.form("fieldtl-revoke", clear_on_submit=True):
                 gone = st.selectbox("Member", [m.name for m in members], key="fieldtl-revoke-name")
-                if st.form_submit_button("Take the role away"):
+                if st.form_submit_button("Take the role away", width="stretch"):
                     try:
                         store.revoke(chosen, gone)
                     except FieldTLError as exc:
@@ -101,7 +101,7 @@ with common.fenced():
             password = st.text_input("Its first password", type="password", max_chars=login.MAX_NAME_CHARS,
                                      key="fieldtl-new-password")
             admin = st.checkbox("Administrator (adds accounts, sees every project)")
-            if st.form_submit_button("Add the account"):
+            if st.form_submit_button("Add the account", width="stretch"):
                 try:
                     made = store.create_account(name.strip(), password, admin=admin)
                 except FieldTLError as exc:

@@ -46,7 +46,7 @@ with common.fenced():
                                             "as this device reaches it.")
             name = st.text_input("Account", max_chars=login.MAX_NAME_CHARS)
             password = st.text_input("Password", type="password", max_chars=login.MAX_NAME_CHARS)
-            submitted = st.form_submit_button("Sign in")
+            submitted = st.form_submit_button("Sign in", width="stretch")
         if submitted:
             if not (address.strip() and recordings.strip() and name.strip() and password):
                 st.info("Type the server address, its recordings folder, your account name and your password first.")
@@ -63,7 +63,7 @@ with common.fenced():
     else:
         account = link.account
         st.write(f"Signed in as **{common.md(account.account.name)}** on {common.md(link.server)}.")
-        if st.button("Sign out of the team server"):
+        if st.button("Sign out of the team server", width="stretch"):
             teamlink.sign_out()
             st.rerun()
         st.subheader("Check a project out to this device")
@@ -80,7 +80,7 @@ with common.fenced():
             if earlier:
                 st.caption(f"Already checked out here on {_when(earlier[0].checked_out_at)}; checking it out "
                            "again makes a second copy on this device.")
-            if st.button("Check out to this device"):
+            if st.button("Check out to this device", width="stretch"):
                 try:
                     local_id = offline.check_out(account, chosen, local)
                 except FieldTLError as exc:
@@ -110,7 +110,7 @@ with common.fenced():
             if role not in ("owner", "tester") and not link.account.account.is_admin:
                 st.caption(f"Your role on this project ({ROLE_WORDS.get(role, 'none')}) does not allow sending "
                            "changes; the team server will refuse them.")
-            if st.button("Check what would be sent", key=f"preview-{pid}"):
+            if st.button("Check what would be sent", key=f"preview-{pid}", width="stretch"):
                 outcomes.pop(pid, None)
                 try:
                     previews[pid] = offline.preview_push(local, link.account, pid)
@@ -132,7 +132,8 @@ with common.fenced():
             unresolved = len(resolve) < len(preview.conflicts)
             if unresolved:
                 st.caption("Choose what to keep for each test above before sending.")
-            if st.button("Send to the team server", key=f"push-{pid}", disabled=unresolved, type="primary"):
+            if st.button("Send to the team server", key=f"push-{pid}", disabled=unresolved, type="primary",
+                         width="stretch"):
                 previews.pop(pid, None)
                 try:
                     result = offline.push(local, link.account, pid, resolve=resolve)
