@@ -191,6 +191,26 @@ def test_keep_the_servers_takes_its_settings_here_and_still_merges_the_takes(sit
     assert "Nothing to send: the team server already has everything of this project." in _shown(at)
 
 
+def test_a_take_removed_here_but_corrected_on_the_server_is_kept_with_keep_the_servers(site):
+    at = _checked_out(site)
+    with Store.open(site["laptop"]) as laptop:
+        local_a = _local_test(laptop, AIRBORNE.title)
+        laptop.delete_take(next(t.id for t in laptop.list_takes(local_a.id) if t.original_name == "s300.wav"))
+        server_take = next(t for t in site["ann"].list_takes(site["a"].id) if t.original_name == "s300.wav")
+        site["ann"].update_take(server_take.id, role="source", speaker=2)
+        _button(at, "Check what would be sent").click().run()
+        rows = at.table[0].value
+        assert list(rows["What"]) == ["s300.wav"] and list(rows["On this device"]) == ["removed"]
+        assert "2" in rows["On the team server"].iloc[0]                      # the server's correction, in words
+        at.radio[0].set_value("server").run()
+        _button(at, "Send to the team server").click().run()
+        assert not at.exception, [e.value for e in at.exception]
+        assert at.success[0].value.startswith("Sent to the team server")
+        back = [t for t in laptop.list_takes(local_a.id) if t.original_name == "s300.wav"]
+        assert [(t.speaker, t.sha256) for t in back] == [(2, server_take.sha256)]     # restored here, nothing lost
+    assert _server_takes(site) == ["s300.wav", "s310.wav"]
+
+
 def test_a_reviewer_cannot_add_takes_through_a_push(site):
     at = _checked_out(site, "rita")
     with Store.open(site["laptop"]) as laptop:
