@@ -13,8 +13,8 @@ from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
 from test_store_offline import _local_test, _server_state, site  # noqa: F401 - the shared fixture
 
 from fieldtl.errors import InputError
-from fieldtl.store.offline import (CheckoutRecord, FieldDifference, check_out, checked_out_projects, preview_push,
-                                   push)
+from fieldtl.store.offline import (CheckoutRecord, FieldDifference, PushPreview, check_out, checked_out_projects,
+                                   preview_push, push)
 
 
 def _by_name(takes, name):
@@ -227,3 +227,35 @@ def test_a_test_type_changed_here_must_suit_the_takes_added_on_the_server(site):
     with pytest.raises(InputError, match=r"^test 'Invented room C to room D': take 'src.wav': .*source"):
         push(laptop, tom, local)                                          # a source take in an impact test
     assert _server_state(ann, site["project"].id) == before
+
+
+def test_takes_added_here_must_suit_the_servers_test_type(site):
+    tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
+    local, _, _ = _checked_out(site)
+    local_b = _local_test(laptop, local, "Invented room C to room D")
+    laptop.add_take(local_b.id, data=wav_bytes(frequency_hz=1600.0), original_name="src.wav", role="source")
+    ann.update_test(site["b"].id, replace(site["b"].setup, test_type="impact"))      # B had no takes yet
+    before = _server_state(ann, site["project"].id)
+    with pytest.raises(InputError, match=r"^take 'src.wav': .*source"):
+        push(laptop, tom, local)
+    assert _server_state(ann, site["project"].id) == before
+
+
+def test_choosing_the_server_takes_its_whole_version_of_the_test_here(site):
+    tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
+    local, local_a, takes = _checked_out(site)
+    laptop.update_test(local_a.id, replace(AIRBORNE, settings={"here": 1}))           # the conflict
+    ann.update_test(site["a"].id, replace(AIRBORNE, settings={"there": 1}))
+    ann.update_take(_by_name(ann.list_takes(site["a"].id), "s310.wav").id, role="receiving", speaker=3)
+    ann.delete_take(_by_name(ann.list_takes(site["a"].id), "s300.wav").id)   # both unchanged here
+    laptop.add_take(local_a.id, data=wav_bytes(frequency_hz=1700.0), original_name="site.wav", role="receiving")
+    (conflict,) = push(laptop, tom, local).conflicts
+    assert conflict.fields == ("app setting here", "app setting there")       # only what both sides changed
+    done = push(laptop, tom, local, resolve={local_a.id: "server"})
+    assert (done.takes_added, done.takes_updated, done.takes_removed, done.tests_updated) == (1, 0, 0, 0)
+    here = {t.original_name: (t.role, t.speaker) for t in laptop.list_takes(local_a.id)}
+    assert here == {"s310.wav": ("receiving", 3), "site.wav": ("receiving", 1)}
+    assert laptop.get_test(local_a.id).setup.settings == {"there": 1}
+    there = {t.original_name: (t.role, t.speaker) for t in ann.list_takes(site["a"].id)}
+    assert there == here and ann.get_test(site["a"].id).setup.settings == {"there": 1}
+    assert preview_push(laptop, tom, local) == PushPreview((), 0, 0, 0, 0, 0)

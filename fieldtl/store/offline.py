@@ -18,7 +18,8 @@ server copy with its fields as they were). :func:`checked_out_projects` lists th
 * anything changed on both sides differently (settings, a take's fields, a take removed on one
   side and changed on the other) is part of that test's :class:`SettingsConflict`, listed as
   :class:`FieldDifference` lines: nothing is pushed until each such test is resolved with
-  ``resolve={local test id: "mine" | "server"}`` ("server" also updates this device's copy);
+  ``resolve={local test id: "mine" | "server"}`` ("server" takes the server's version of the
+  test here too: its settings, its takes' fields and removals; takes added here are still sent);
 * tests made offline are added; a test deleted on the server meanwhile is added again.
 
 Only audio the server's folder lacks is copied, before the transaction (which then only renames
@@ -187,6 +188,7 @@ def _apply_on_server(db: Any, work: list[TestWork], server_project: int) -> None
         for server_take_id in w.server_removals:
             db.execute("DELETE FROM takes WHERE id = ? AND test_id = ?", (server_take_id, w.server_test_id))
         for take in w.server_adds:
+            check_take_fields(test_type, **rows.take_fields(take), where=f"take {echo(take.original_name)}")
             row = {c: getattr(take, c) for c in rows.TAKE_COLUMNS} | {"test_id": w.server_test_id}
             w.links[str(take.id)]["server_take_id"] = rows.insert_take(db, row)
         if w.server_test is not None and test_type != w.server_test.setup.test_type:   # every take must suit it

@@ -1,9 +1,11 @@
 """What a push would do, test by test: compare this device's project with the server's and the
 check-out record's base (each test's settings and each take's fields as they were checked out).
 
-A value changed on one side only goes to that side's copy; changed on both sides to different
-values, it is a conflict shown as :class:`FieldDifference` lines and resolved per test ("mine" or
-"server"). Takes are linked to their server copies by the record; a take added offline whose
+A value changed here only is sent to the server; one changed on the server only stays as the
+server has it. Changed on both sides to different values, it is a conflict shown as
+:class:`FieldDifference` lines and resolved per test: "mine" sends this device's values, "server"
+takes the server's version of the test here too (its settings, its takes' fields and removals;
+takes added here are still sent). Takes are linked to their server copies by the record; a take added offline whose
 audio the server's test already holds (and no other take is linked to) is the same take.
 """
 
@@ -155,7 +157,9 @@ def _plan_takes(one: TestWork, takes: list[TakeRecord], server_takes: list[TakeR
             continue
         server = by_id.get(entry["server_take_id"])
         if server is None:                          # removed on the server
-            if here == entry["base"]:
+            if here == entry["base"] and choice == "server":
+                one.local_removals.append(take.id)        # the server's version of the test, here too
+            elif here == entry["base"]:
                 one.links[str(take.id)] = dict(entry)     # the server's removal stands; nothing to send
             else:
                 differences.append(FieldDifference(take.original_name, _changed_words(here, entry["base"]), REMOVED))
@@ -194,7 +198,9 @@ def _both_changed(one: TestWork, take: TakeRecord, server: TakeRecord, base: Map
     here, there = take_fields_of(take), take_fields_of(server)
     link = {"server_take_id": server.id, "base": here}
     if here == there or (base is not None and here == base):
-        one.links[str(take.id)] = link | {"base": there if here == there else dict(base or here)}
+        if here != there and choice == "server":  # the server's version of the test, here too
+            one.local_updates.append((take.id, server))
+        one.links[str(take.id)] = link | {"base": there if here == there or choice == "server" else dict(base or here)}
         return []
     if base is not None and there == base:
         one.server_updates.append((take, server.id))
