@@ -11,7 +11,8 @@ import pytest
 from scipy import signal
 from test_decay import FS, modal_impulse_response
 
-from fieldtl.analysis.decay import DECAY_EDGE_FRACTION, DECAY_MIN_RATE_HZ, decay_stage, reverberation_from_impulse_response
+from fieldtl.analysis.decay import (DECAY_EDGE_FRACTION, DECAY_MIN_RATE_HZ, decay_stage,
+                                    reverberation_from_impulse_response)
 from fieldtl.analysis.edc import fit_decay_line, schroeder_decay_db
 from fieldtl.analysis.filterbank import band_sos
 from fieldtl.bands import band_edges_hz
