@@ -6,9 +6,9 @@ tester reopening the app on site would. Each figure is the wall time from the ac
 button clicked, file chosen) until what it should show is visible:
 
 - first page: the Projects page after the server answers its health check;
-- demo test: the Takes page with every take's line;
+- demo test: the Takes page with every take's card (each drawn with what it showed, once measured);
 - results: the verdict; later pages: Takes and Results again, and the Report page opened by address;
-- new take: an uploaded recording listed with its findings;
+- new take: an uploaded recording's card listed with what it showed (its level line);
 - PDF: the download button after "Make the PDF report".
 
 Targets (issue 10, not asserted): first page after a restart under 3 s; opening the demo test and
@@ -69,11 +69,22 @@ def new_recording() -> bytes:
 
 def walk(page, url: str, figures: dict[str, float], prefix: str, *, upload: bool) -> None:
     heading = lambda name: page.get_by_role("heading", name=name, exact=True).wait_for(timeout=TIMEOUT_MS)  # noqa: E731
-    toggles = page.get_by_text("Use this take")
+    cards = page.locator("[class*='st-key-take-card-']")      # one bordered card per take
 
-    def takes_listed() -> None:
+    def takes_listed() -> int:
+        """Wait until the Takes page shows every take's card; the number of takes."""
         heading("Takes")
-        toggles.first.wait_for(timeout=TIMEOUT_MS)
+        counted = page.get_by_text(re.compile(r"Takes so far \(\d+ used, \d+ left out\)"))
+        counted.wait_for(timeout=TIMEOUT_MS)
+        total = sum(map(int, re.findall(r"\d+", counted.inner_text())))
+        wait_for_cards(total)
+        return total
+
+    def wait_for_cards(total: int) -> None:
+        deadline = time.monotonic() + TIMEOUT_MS / 1000
+        while cards.count() < total and time.monotonic() < deadline:
+            time.sleep(0.02)
+        cards.nth(total - 1).wait_for(timeout=TIMEOUT_MS)        # the last (oldest) card drawn and visible
 
     verdict = page.get_by_text(re.compile(r"(PASS|FAIL|UNDECIDED) against"))
     figures[f"{prefix} first page"] = timed(lambda: page.goto(url), lambda: heading("Projects"))
@@ -91,15 +102,13 @@ def walk(page, url: str, figures: dict[str, float], prefix: str, *, upload: bool
         lambda: page.get_by_text("Download the PDF report").wait_for(timeout=TIMEOUT_MS))
     if upload:
         page.goto(f"{url}/takes?{query}")
-        takes_listed()
-        count = toggles.count()
+        count = takes_listed()
         data = new_recording()
 
         def more_takes() -> None:
             page.get_by_text(re.compile(r"Stored .*bench-take\.wav")).first.wait_for(timeout=TIMEOUT_MS)
-            deadline = time.monotonic() + TIMEOUT_MS / 1000
-            while toggles.count() <= count and time.monotonic() < deadline:
-                time.sleep(0.02)
+            wait_for_cards(count + 1)
+            cards.filter(has_text="bench-take.wav").filter(has_text="(100-3150 Hz)").wait_for(timeout=TIMEOUT_MS)
 
         figures[f"{prefix} new take listed"] = timed(
             lambda: page.locator("input[type=file]").first.set_input_files(

@@ -95,6 +95,62 @@ def test_removing_a_take_turns_the_checklist_back_undo_restores_and_leaving_dele
     assert _takes(data_dir, test_id) == ()
 
 
+def test_takes_are_read_only_cards_and_one_place_changes_the_chosen_take(data_dir, empty_test):
+    # A phone draws thirty takes at once when each is a card of text: the widgets to change a take
+    # exist once, for the take chosen by its file name (a take just stored is the one chosen).
+    project_id, test_id = empty_test
+    at = _open("views/takes.py", project_id, test_id)
+    at.selectbox[0].set_value("background").run()
+    for name in ("bg_p1.flac", "bg_p2.flac"):
+        at.get("file_uploader")[0].upload(name, (DEMO / name).read_bytes(), "audio/flac")
+        at.run()
+    first, second = _takes(data_dir, test_id)
+    cards = [c for c in (e.value.replace("\\", "") for e in at.markdown) if c.startswith("**bg_p")]
+    assert [c.split("**")[1] for c in cards] == [                     # the newest first, titled by file name
+        "bg_p2.flac (background noise in the receiving room, microphone 2)",
+        "bg_p1.flac (background noise in the receiving room, microphone 1)"]
+    assert all("used · channel 1 · uploaded" in c and "dB re FS (100-3150 Hz)" in c for c in cards)
+    toggles = [t.key for t in at.toggle]
+    assert toggles == [f"use-take-{second.id}"]                       # one take's widgets, the newest
+    assert [b.label for b in at.button].count("Remove this take") == 1
+    at.selectbox(key="edit-take").set_value(first.id).run()
+    assert [t.key for t in at.toggle] == [f"use-take-{first.id}"]
+    at.toggle(key=f"use-take-{first.id}").set_value(False).run()      # left out, in words on its card
+    assert _takes(data_dir, test_id)[0].excluded
+    card = next(c for c in (e.value.replace("\\", "") for e in at.markdown) if c.startswith("**bg_p1.flac"))
+    assert "**left out** · channel 1" in card and "Takes so far (1 used, 1 left out)" in [h.value for h in at.subheader]
+    assert at.selectbox(key="edit-take").value == first.id           # the choice stays after a change
+
+
+def test_the_construction_page_waits_for_the_background_measurer(data_dir, demo_address, monkeypatch):
+    # Like Results, the Construction page shows the bar while the test's takes are measured and
+    # assesses only once they are in the store, never measuring them itself in the page.
+    import streamlit as st
+
+    from fieldtl.testrun import BackgroundMeasurer
+    from fieldtl.ui import cached
+
+    st.cache_data.clear()
+    events, answers = [], iter([(5, 31), (30, 31)])
+
+    def pending(self, test_id):
+        status = next(answers, None)
+        events.append("measuring" if status else "ready")
+        return status
+
+    def assess_survey(survey, **options):
+        events.append("assess")
+        return real_assess(survey, **options)
+
+    real_assess = cached.assess_survey
+    monkeypatch.setattr(BackgroundMeasurer, "pending", pending)
+    monkeypatch.setattr(cached, "assess_survey", assess_survey)
+    at = _open("views/construction.py", *demo_address)
+    assert "Predicted Rw" in _texts(at)
+    assert events.index("ready") < events.index("assess"), events
+    assert events[:3] == ["measuring", "measuring", "ready"]
+
+
 def test_a_take_can_be_corrected(data_dir, empty_test):
     project_id, test_id = empty_test
     at = _open("views/takes.py", project_id, test_id)

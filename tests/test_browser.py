@@ -157,21 +157,31 @@ def test_phone_takes_listed_at_once_duplicates_refused_removal_and_results_reloa
             page.locator("input[type=file]").set_input_files(str(fresh))
             page.get_by_text("Stored hum.wav (source room, loudspeaker 1, microphone 6).").wait_for(timeout=120_000)
             page.get_by_text(re.compile(r"Takes so far \(32 used")).wait_for(timeout=120_000)   # listed at once
+            cards = page.locator("[class*='st-key-take-card-']")          # a read-only card per take
+            cards.filter(has_text="hum.wav (source room, loudspeaker 1, microphone 6)").wait_for(timeout=120_000)
+            assert cards.count() == 32 and "used · channel 1 · uploaded" in cards.first.inner_text()
             page.locator("input[type=file]").set_input_files(str(REPO / "sample_audio" / "bg_p1.flac"))
             page.get_by_text(re.compile(r"bg_p1\.flac is already stored in this test as bg_p1\.flac "
                                         r"\(background noise in the receiving room, microphone 1\)")).wait_for(
                 timeout=120_000)
-            page.get_by_text("Correct, change channel or remove").first.click()      # the newest take first
-            page.get_by_role("button", name="Remove this take").first.click()
+            change = page.get_by_text("Use, correct, change channel or remove a take")
+            change.click()                                  # one place to change a take: the new one chosen
+            chosen = page.get_by_role("combobox", name="Take to change")
+            assert chosen.input_value().startswith("hum.wav (source room")
+            assert page.get_by_text("Use this take").count() == 1      # the widgets exist once, not per take
+            page.get_by_role("button", name="Remove this take").click()
             page.get_by_text("Removed hum.wav").wait_for(timeout=120_000)
             page.get_by_text(re.compile(r"Takes so far \(31 used")).wait_for(timeout=120_000)
             assert _contrast(page, "[data-testid='stCaptionContainer'] p") >= 4.5       # WCAG 2.x AA text
             # removing the calibration check at the end turns the checklist back; undo restores it
             page.get_by_text("Checklist: 8 of 8 done").wait_for(timeout=60_000)
-            end_tone = page.get_by_text("cal_after.flac (calibrator tone at the end)").locator(
-                "xpath=ancestor::div[.//details][1]")                  # the take's bordered box
-            end_tone.get_by_text("Correct, change channel or remove").click()
-            end_tone.get_by_role("button", name="Remove this take").click()
+            if not chosen.is_visible():
+                change.click()
+            chosen.fill("cal_after")                        # chosen by its file name and positions
+            page.get_by_role("option", name="cal_after.flac (calibrator tone at the end)").click()
+            page.get_by_text("Use this take").wait_for(timeout=60_000)
+            assert chosen.input_value() == "cal_after.flac (calibrator tone at the end)"
+            page.get_by_role("button", name="Remove this take").click()
             page.get_by_text("Checklist: 7 of 8 done").wait_for(timeout=120_000)
             page.get_by_role("button", name="Undo").last.click()             # hum.wav stays removed
             page.get_by_text("Checklist: 8 of 8 done").wait_for(timeout=120_000)

@@ -85,6 +85,7 @@ with common.fenced():
             takes.append(take)
             titles.update(takelist.titles(takes, setup.test_type))
             takelist.say("success", f"Stored {common.md(titles[take.id])}.")
+            takeview.choose(take.id)          # the take just stored is the one offered for correction
 
     if pasted:
         tabs = dict(zip(("paste",), st.tabs(["Paste levels"])))
