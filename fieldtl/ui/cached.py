@@ -25,9 +25,12 @@ from fieldtl.ui import login
 
 DEMO_SURVEY = Path(__file__).resolve().parents[2] / "sample_audio" / "survey.toml"
 DEMO_PROJECT = "Invented demo: Brackenfold House (a fictional building)"
-# What the Results and Report pages import (charts, tables, the PDF writer; about 2 s together):
-# loaded by a background thread once the takes are measured, so the first visit does not wait.
-LATER_MODULES = ("fieldtl.ui.chart", "fieldtl.report.export", "fieldtl.report.pdf")
+# What measuring a new take imports (scipy.signal and the analysis, about 1.3 s; a restarted app
+# reads every stored take from the store and would otherwise pay it on the first new take), then
+# what the Results and Report pages import (charts, tables, the PDF writer; about 2 s together):
+# loaded by a background thread once the takes are measured, so neither waits on a first visit.
+LATER_MODULES = ("fieldtl.analysis.levels", "fieldtl.analysis.decay", "fieldtl.analysis.interrupted",
+                 "fieldtl.audio.calibration", "fieldtl.ui.chart", "fieldtl.report.export", "fieldtl.report.pdf")
 
 
 def _release(opened: tuple[Store, BackgroundMeasurer]) -> None:

@@ -7,8 +7,7 @@ from fieldtl.construction.predict import predict
 from fieldtl.errors import FieldTLError
 from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK, marked
 from fieldtl.store import declared_construction
-from fieldtl.ui import cached, chart, common, gate
-
+from fieldtl.ui import cached, chart, common, gate, progress
 
 
 def _one_decimal(spectrum) -> list[str]:
@@ -40,6 +39,7 @@ with common.fenced():
                 if prediction.mass_air_mass_resonance_hz else "") + ".")
     st.caption(common.md(marked(prediction.method)))
     check = None
+    progress.wait_until_measured(test.id)    # a bar while the background measurer is on this test's takes
     try:
         check = cached.assessment(store.survey_for_test(test.id)).construction_check
     except FieldTLError as exc:
