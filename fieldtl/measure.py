@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import os
 import queue
+import threading
 from collections.abc import Callable, Sequence
 from concurrent.futures import Future, ThreadPoolExecutor
 from concurrent.futures import TimeoutError as FutureTimeout
@@ -109,21 +110,31 @@ def default_workers() -> int:
 
 class _Runner:
     """Runs jobs on a pool of threads (or in the calling thread when there is one worker), passing
-    their progress reports to the calling thread. Mutable by design; use it as a context manager."""
+    their progress reports to the calling thread. Mutable by design; use it as a context manager:
+    leaving it by an error or an interrupt stops the jobs still running at their next progress
+    report (a level take reports after every block) and drops those not started."""
 
     def __init__(self, workers: int, progress: Progress | None) -> None:
         self._pool = ThreadPoolExecutor(workers, thread_name_prefix="fieldtl-take") if workers > 1 else None
         self._report = progress
         self._reports: queue.SimpleQueue[tuple[str, float]] = queue.SimpleQueue()
-        self.progress: Progress | None = None if progress is None else (
-            progress if self._pool is None else lambda name, done: self._reports.put((name, done)))
+        self._stopping = threading.Event()
+        self.progress: Progress | None = progress if self._pool is None else self._from_worker
 
     def __enter__(self) -> _Runner:
         return self
 
-    def __exit__(self, *exc: object) -> None:
+    def __exit__(self, error: type[BaseException] | None, *_: object) -> None:
         if self._pool is not None:
-            self._pool.shutdown(wait=True, cancel_futures=True)   # an error: the jobs not started never run
+            if error is not None:
+                self._stopping.set()
+            self._pool.shutdown(wait=True, cancel_futures=True)
+
+    def _from_worker(self, name: str, done: float) -> None:
+        if self._stopping.is_set():
+            raise _Stopped(name)
+        if self._report is not None:
+            self._reports.put((name, done))
 
     def submit(self, job: Callable[..., Any], *args: Any, **kwargs: Any) -> Future[Any]:
         if self._pool is not None:
@@ -153,6 +164,10 @@ class _Runner:
             except queue.Empty:
                 return
             self._report(name, done)
+
+
+class _Stopped(Exception):
+    """A take's measurement left unfinished: another take failed or the run was interrupted."""
 
 
 def measure_take(spec: TakeSpec, *, level_offset_db: float,

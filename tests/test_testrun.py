@@ -387,3 +387,33 @@ def test_progress_is_reported_from_the_calling_thread_only():
     measure_survey(dataclasses.replace(survey, takes=survey.takes[:4]), progress=progress, workers=4)
     assert threads == {threading.get_ident()}
     assert names == {take.file.name for take in survey.takes[:4]}
+
+
+def test_an_error_stops_the_takes_still_being_measured(tmp_path, monkeypatch):
+    # the first take fails at once; a long take running beside it stops at its next block instead of
+    # being measured to its end (the error comes back as soon as the running takes have stopped)
+    import threading
+
+    import fieldtl.measure as measure
+
+    survey = load_survey(DEMO / "survey.toml")
+    started, blocks_after_error = threading.Event(), []
+    real = measure.measure_take
+
+    def slow_or_failing(spec, *, level_offset_db, progress=None):
+        if spec.file.name == "bad.flac":
+            started.wait(5)
+            raise InputError("bad.flac: not a readable WAV or FLAC file")
+        started.set()
+        for block in range(200):
+            time.sleep(0.01)
+            progress(spec.file.name, block / 200)     # a level take reports after every block
+            blocks_after_error.append(block)
+        return real(spec, level_offset_db=level_offset_db)
+
+    monkeypatch.setattr(measure, "measure_take", slow_or_failing)
+    takes = (dataclasses.replace(survey.takes[0], file=tmp_path / "bad.flac"), survey.takes[1])
+    (tmp_path / "bad.flac").write_bytes(b"")
+    with pytest.raises(InputError, match="^bad.flac"):
+        measure.measure_survey(dataclasses.replace(survey, takes=takes, calibration=None), workers=2)
+    assert len(blocks_after_error) < 100
