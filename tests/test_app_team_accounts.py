@@ -158,7 +158,9 @@ def _change_password(at, current, new, again=None):
 
 
 def test_a_password_changes_only_with_the_current_one(team):
-    server, new = team["server"], "invented-password-9"
+    # the core's floor is 10 characters (common practice): 9 is refused, exactly 10 is taken
+    server, new = team["server"], "inv-pass10"
+    assert len(new) == 10
     at = _change_password(_page(_signed_in("tom"), "account.py"), PASSWORD + "x", new)
     assert at.error[0].value == "The current password is not right. The password is unchanged."
     assert server.login("tom", PASSWORD).account.name == "tom"
@@ -168,6 +170,9 @@ def test_a_password_changes_only_with_the_current_one(team):
     assert at.error[0].value == "The two new passwords differ. The password is unchanged."
     with pytest.raises(PermissionDenied):
         server.login("tom", new)
+    at = _change_password(at, PASSWORD, "inv-pass9")           # 9 characters
+    assert at.error[0].value.replace("\\", "") == "password: at least 10 characters, please. The password is unchanged."
+    assert server.login("tom", PASSWORD).account.name == "tom"
     at = _change_password(at, PASSWORD, new)
     assert at.success[0].value == "Password changed. Use the new one next time you sign in."
     assert server.login("tom", new).account.name == "tom"
@@ -203,3 +208,10 @@ def test_the_team_server_page_refuses_on_a_team_server(team):
     assert at.title[0].value == "Team server"
     assert at.info[0].value.startswith("This app already works on the team server")
     assert not at.text_input and not [b for b in at.button if b.label.startswith("Check")]
+
+
+def test_signing_out_shows_the_sign_in_form_again(team):
+    at = _page(_signed_in("tom"), "account.py")
+    _ok(_button(at, "Sign out").click().run())
+    assert [t.label for t in at.text_input] == ["Account", "Password"]
+    assert SECRET not in _shown(at) and "tom" not in _shown(at)

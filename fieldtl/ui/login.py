@@ -59,6 +59,29 @@ def draw(keys: tuple[str, ...]) -> None:
         st.info("Type your account name and password first.")
 
 
+def change_password(current: str, new: str, again: str) -> str | None:
+    """Change the signed-in account's own password; returns None, or a sentence saying why not.
+
+    A wrong current password counts as a wrong guess (and waits as at sign-in); a new password the
+    server refuses (too short) raises its one-line InputError."""
+    from fieldtl.ui import gate
+
+    keys = gate.client_keys()
+    wait_s = access.LIMITER.wait_s(keys)
+    if wait_s > 0:
+        return f"Too many wrong passwords from here: the next try is looked at in {access.describe_wait(wait_s)}."
+    if new != again:
+        return "The two new passwords differ."
+    try:
+        account_store().change_password(current, new)
+    except PermissionDenied:
+        wait_s = access.LIMITER.failed(keys)
+        return "The current password is not right." + (
+            f" The next try is looked at in {access.describe_wait(wait_s)}." if wait_s > 0 else "")
+    access.LIMITER.succeeded(keys[:1])
+    return None
+
+
 def sign_out() -> None:
     """Forget this session's account: the next run shows the sign-in form."""
     st.session_state.pop(ACCOUNT_KEY, None)

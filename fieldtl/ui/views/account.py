@@ -10,8 +10,7 @@ one line). Passwords typed here are passed on and never kept.
 import streamlit as st
 
 from fieldtl.errors import FieldTLError
-from fieldtl.store.errors import PermissionDenied
-from fieldtl.ui import access, cached, common, gate, login
+from fieldtl.ui import cached, common, gate, login
 
 ROLE_CHOICES = {"tester": "Tester: adds and changes tests and takes", "reviewer": "Reviewer: reads and signs off",
                 "owner": "Owner: everything, and gives roles"}
@@ -39,24 +38,14 @@ with common.fenced():
             again = st.text_input("New password again", type="password", max_chars=login.MAX_NAME_CHARS)
             changing = st.form_submit_button("Change password", width="stretch")
         if changing:
-            keys = gate.client_keys()
-            wait_s = access.LIMITER.wait_s(keys)
-            if wait_s > 0:
-                st.error(f"Too many wrong passwords from here: the next try is looked at in "
-                         f"{access.describe_wait(wait_s)}. The password is unchanged.")
-            elif new != again:
-                st.error("The two new passwords differ. The password is unchanged.")
+            try:
+                refused = login.change_password(current, new, again)
+            except FieldTLError as exc:
+                refused = f"{common.md(exc)}."
+            if refused is None:
+                st.success("Password changed. Use the new one next time you sign in.")
             else:
-                try:
-                    store.change_password(current, new)
-                except PermissionDenied:
-                    access.LIMITER.failed(keys)
-                    st.error("The current password is not right. The password is unchanged.")
-                except FieldTLError as exc:
-                    st.error(f"{common.md(exc)}. The password is unchanged.")
-                else:
-                    access.LIMITER.succeeded(keys[:1])
-                    st.success("Password changed. Use the new one next time you sign in.")
+                st.error(f"{refused} The password is unchanged.")
 
     st.subheader("Project members")
     projects = store.list_projects()
