@@ -246,6 +246,19 @@ def test_a_wrong_password_signs_nothing_in(site):
     assert teamlink.LINK_KEY not in at.session_state
 
 
+def test_a_wrong_recordings_folder_checks_nothing_out_and_names_no_stored_file(site, tmp_path):
+    (tmp_path / "elsewhere").mkdir()
+    at = _signed_in(site, "tom", recordings=str(tmp_path / "elsewhere"))
+    _button(at, "Check out to this device").click().run()
+    assert not at.exception and not at.success
+    message = _plain(at.error[0].value)
+    assert message.startswith("Nothing was checked out: a recording: cannot copy the audio")
+    assert message.endswith("Is the team recordings folder the right one?")
+    assert not any(t.sha256 in message for t in site["ann"].list_takes(site["a"].id))
+    with Store.open(site["laptop"]) as laptop:
+        assert laptop.list_projects() == ()
+
+
 def test_this_devices_own_recordings_folder_is_refused(site):
     at = _signed_in(site, "tom", recordings=site["own_audio"])
     assert [_plain(e.value) for e in at.error] == ["Team recordings folder: that is this device's own recordings folder; "

@@ -11,6 +11,7 @@ and the client's address as wrong access codes do (ui/access.py).
 from __future__ import annotations
 
 import atexit
+import re
 import threading
 from dataclasses import dataclass
 from pathlib import Path
@@ -24,6 +25,7 @@ from fieldtl.store.location import check_store_url
 from fieldtl.ui import access, gate
 from fieldtl.validate import echo
 
+_STORED_NAME = re.compile(r"\b[0-9a-f]{64}(\.[A-Za-z0-9]+)?\b")   # the store's name of an audio file
 LINK_KEY = "fieldtl.team_link"         # Session State: this session's Link, or absent
 MAX_ADDRESS_CHARS = 300
 
@@ -93,6 +95,18 @@ def close_all() -> None:
         for server in _SERVERS.values():
             server.close()
         _SERVERS.clear()
+
+
+def plain(exc: Exception) -> str:
+    """A core message with any stored file name (the audio's content hash) replaced by plain words."""
+    return _STORED_NAME.sub("a recording", str(exc))
+
+
+def checkout_refusal(exc: Exception) -> str:
+    """Why a check-out failed, in plain words (nothing was copied: the core adds the project last)."""
+    words = plain(exc)
+    hint = " Is the team recordings folder the right one?" if words != str(exc) else ""
+    return f"Nothing was checked out: {words}.{hint}"
 
 
 # --- words -------------------------------------------------------------------------------------------

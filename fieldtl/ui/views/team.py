@@ -84,7 +84,7 @@ with common.fenced():
                 try:
                     local_id = offline.check_out(account, chosen, local)
                 except FieldTLError as exc:
-                    st.error(common.md(exc))
+                    st.error(common.md(teamlink.checkout_refusal(exc)))
                 else:
                     state.open_project(local_id)
                     st.success(f"{common.md(local.get_project(local_id).name)} is now on this device: open it "
@@ -138,7 +138,7 @@ with common.fenced():
                 try:
                     result = offline.push(local, link.account, pid, resolve=resolve)
                 except FieldTLError as exc:
-                    outcomes[pid] = ("error", f"Nothing was sent. {common.md(exc)}")
+                    outcomes[pid] = ("error", f"Nothing was sent. {common.md(teamlink.plain(exc))}")
                 else:
                     if result.pushed:
                         outcomes[pid] = ("success", f"Sent to the team server: {teamlink.result_words(result)}.")
