@@ -39,7 +39,7 @@ def team(pg_url, tmp_path, monkeypatch):  # noqa: F811
         ann.grant(project.id, "rita", "reviewer")
         st.cache_resource.clear()
         st.cache_data.clear()
-        yield dict(server=server, ann=ann, project=project, test=test)
+        yield {"server": server, "ann": ann, "project": project, "test": test}
         st.cache_resource.clear()
         st.cache_data.clear()
 

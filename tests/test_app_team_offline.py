@@ -48,8 +48,8 @@ def site(pg_url, tmp_path, monkeypatch):  # noqa: F811
             ann.add_take(a.id, data=wav_bytes(frequency_hz=hz), original_name=f"s{hz:.0f}.wav", role="source")
         st.cache_resource.clear()
         st.cache_data.clear()
-        yield dict(url=pg_url, ann=ann, project=project, a=a, b=b, laptop=data / "fieldtl.sqlite3",
-                   recordings=str(tmp_path / "team-audio"), own_audio=str(data / "audio"))
+        yield {"url": pg_url, "ann": ann, "project": project, "a": a, "b": b, "laptop": data / "fieldtl.sqlite3",
+               "recordings": str(tmp_path / "team-audio"), "own_audio": str(data / "audio")}
         st.cache_resource.clear()
         st.cache_data.clear()
         teamlink.close_all()
@@ -261,12 +261,12 @@ def test_a_wrong_recordings_folder_checks_nothing_out_and_names_no_stored_file(s
 
 def test_this_devices_own_recordings_folder_is_refused(site):
     at = _signed_in(site, "tom", recordings=site["own_audio"])
-    assert [_plain(e.value) for e in at.error] == ["Team recordings folder: that is this device's own recordings folder; "
-                                           "give the team server's shared folder"]
+    assert [_plain(e.value) for e in at.error] == [("Team recordings folder: that is this device's own recordings "
+                                                    "folder; give the team server's shared folder")]
     assert teamlink.LINK_KEY not in at.session_state
 
 
 def test_an_address_that_is_not_a_team_server_is_one_line(site):
     at = _signed_in(site, "tom", url="/tmp/not-a-server")
-    assert [_plain(e.value) for e in at.error] == ["Team server address: expected a postgresql://user@host/database URL, "
-                                           "got '/tmp/not-a-server'"]
+    assert [_plain(e.value) for e in at.error] == [("Team server address: expected a "
+                                                    "postgresql://user@host/database URL, got '/tmp/not-a-server'")]

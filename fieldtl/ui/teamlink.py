@@ -79,7 +79,8 @@ def sign_out() -> None:
 
 
 def _server(address: str, recordings: Path) -> Any:
-    from fieldtl.store.postgres import ServerStore     # the driver only when a server is used
+    # the driver is imported only when a server is used
+    from fieldtl.store.postgres import ServerStore
 
     with _LOCK:
         found = _SERVERS.get((address, recordings))
@@ -128,8 +129,8 @@ def preview_words(preview) -> str:  # preview: fieldtl.store.offline.PushPreview
                                           preview.takes_to_update, preview.takes_to_remove)):
         return "Nothing to send: the team server already has everything of this project."
     lines = [f"Would be added: {_n(preview.tests_to_add, 'test')}, {_n(preview.takes_to_add, 'take')}.",
-             f"Would be updated: {_n(preview.tests_to_update, 'test')} (settings), "
-             f"{_n(preview.takes_to_update, 'take')} (details).",
+             (f"Would be updated: {_n(preview.tests_to_update, 'test')} (settings), "
+              f"{_n(preview.takes_to_update, 'take')} (details)."),
              f"Would be removed: {_n(preview.takes_to_remove, 'take')} (removed on this device)."]
     if preview.conflicts:
         lines.append(f"{_n(len(preview.conflicts), 'test')} changed here and on the team server: choose below "

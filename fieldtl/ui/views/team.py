@@ -17,7 +17,6 @@ PREVIEWS = "fieldtl.push_previews"       # Session State: local project id → t
 OUTCOMES = "fieldtl.push_outcomes"       # Session State: local project id → (kind, sentence) after a push
 
 
-
 def _when(iso_utc: str) -> str:
     return f"{iso_utc[:16].replace('T', ' ')} UTC"
 
@@ -144,7 +143,7 @@ with common.fenced():
                         outcomes[pid] = ("success", f"Sent to the team server: {teamlink.result_words(result)}.")
                     else:
                         previews[pid] = offline.preview_push(local, link.account, pid)
-                        outcomes[pid] = ("error", "Nothing was sent: the team server changed meanwhile. "
-                                                  "Choose again for each test.")
+                        outcomes[pid] = ("error", ("Nothing was sent: the team server changed meanwhile. "
+                                                   "Choose again for each test."))
                 st.rerun()
     common.cautions()
