@@ -215,3 +215,15 @@ def test_signing_out_shows_the_sign_in_form_again(team):
     _ok(_button(at, "Sign out").click().run())
     assert [t.label for t in at.text_input] == ["Account", "Password"]
     assert SECRET not in _shown(at) and "tom" not in _shown(at)
+
+
+@pytest.mark.parametrize("view", ["account.py", "team.py"])
+def test_without_signing_in_a_team_page_shows_only_the_sign_in_form(team, view):
+    switched = AppTest.from_file(APP, default_timeout=180)
+    _ok(switched.run())
+    on_its_own = AppTest.from_file(str(Path(APP).parent / "views" / view), default_timeout=180)
+    for at in (_ok(switched.switch_page(f"views/{view}").run()), _ok(on_its_own.run())):
+        assert [t.value for t in at.title] == ["fieldtl"]
+        assert [t.label for t in at.text_input] == ["Account", "Password"]
+        assert [b.label for b in at.button] == ["Sign in"]
+        assert SECRET not in _shown(at) and not at.table and not at.selectbox
