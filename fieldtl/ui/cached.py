@@ -6,10 +6,12 @@ assessment on top of them is cheap and also cached per server process here.
 
 from __future__ import annotations
 
+import contextlib
 import importlib
 import os
 import threading
 import time
+from collections.abc import Iterator
 from pathlib import Path
 
 import streamlit as st
@@ -57,10 +59,42 @@ def _load_later_modules(measurer: BackgroundMeasurer) -> None:
     while not measurer.idle():          # the analysis first: it is what the first pages wait for
         time.sleep(0.5)
     for name in LATER_MODULES:
+        _wait_until_quiet()             # an import holds the interpreter: never while a page is drawn
         try:
             importlib.import_module(name)
         except Exception:  # noqa: BLE001 - only a head start: the page importing it reports any problem
             return
+
+
+# Page runs in progress and when the last one ended: the background imports wait for a pause
+# (measured: importing during the first Takes page after a restart made it 2-4 times slower).
+QUIET_S = 2.0
+_activity = threading.Condition()
+_runs = {"active": 0, "ended": time.monotonic()}
+
+
+@contextlib.contextmanager
+def page_run() -> Iterator[None]:
+    """Mark a page body as running (``common.fenced`` wraps every page in it)."""
+    with _activity:
+        _runs["active"] += 1
+    try:
+        yield
+    finally:
+        with _activity:
+            _runs["active"] -= 1
+            _runs["ended"] = time.monotonic()
+            _activity.notify_all()
+
+
+def _wait_until_quiet() -> None:
+    """Return once no page is running and none has ended in the last QUIET_S seconds."""
+    with _activity:
+        while True:
+            idle_s = time.monotonic() - _runs["ended"]
+            if _runs["active"] == 0 and idle_s >= QUIET_S:
+                return
+            _activity.wait(timeout=max(QUIET_S - idle_s, 0.05) if _runs["active"] == 0 else None)
 
 
 def store() -> Store:

@@ -40,7 +40,8 @@ def fenced() -> Iterator[None]:
     traceback goes to the server's log only.
     """
     try:
-        yield
+        with cached.page_run():      # background imports wait while a page is drawn
+            yield
     except FieldTLError as exc:
         st.error(md(exc))
         cautions()
