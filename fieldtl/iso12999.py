@@ -125,6 +125,11 @@ def _row_name(descriptor: str, key: str, first: str) -> str:
     return first if not key else f"{first} + {key}"
 
 
+def band_uncertainty_source(test_type: str, situation: str) -> str:
+    """The table giving per-band uncertainties for this kind of test, and the situation (chart legends)."""
+    return f"ISO 12999-1:2020 Table {2 if test_type == 'airborne' else 4}, situation {situation}"
+
+
 def band_uncertainty_db(test_type: str, nominal_hz: Sequence[float], *,
                         situation: str = FIELD_DEFAULT_SITUATION) -> BandSpectrum | None:
     """Table 2 (airborne) or Table 4 (impact) per band, for ``nominal_hz``; None when no column exists.

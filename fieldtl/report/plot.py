@@ -20,6 +20,7 @@ from fieldtl.assess import Assessment
 from fieldtl.bands import BandSpectrum
 from fieldtl.construction import Comparison
 from fieldtl.errors import InputError
+from fieldtl.iso12999 import band_uncertainty_source
 from fieldtl.rating import Rating
 from fieldtl.validate import file_label
 
@@ -31,11 +32,6 @@ FIGURE_SIZE_IN = (7.0, 4.2)
 FIGURE_DPI = 110
 TITLE_FONT_SIZE = 10
 TITLE_WIDTH_FRACTION = 0.9         # of the figure's width, left for a title line
-
-
-def band_uncertainty_source(test_type: str, situation: str) -> str:
-    """The ISO 12999-1 table giving per-band uncertainties for this kind of test, and the situation."""
-    return f"ISO 12999-1:2020 Table {2 if test_type == 'airborne' else 4}, situation {situation}"
 
 
 def rating_figure(spectrum: BandSpectrum, rating: Rating, *, limited: tuple[bool, ...] = (),
