@@ -6,9 +6,10 @@ JSON results (in memory). Everything is imported first; each run is in this proc
 designs made by the first run are reused, as they are for the later takes of one CLI run.
 For comparison, every audio file the survey names is read whole with soundfile, in one thread. The
 assessment runs twice per round: on one thread, and on the threads ``fieldtl assess`` uses (one per
-core, at most 4: fieldtl.measure.default_workers; numpy, scipy and soundfile release the GIL). All
-are timed REPEATS times, taking turns; the medians are compared. The load average is printed
-before and after: on a shared machine the figures move with it.
+core that other processes leave free, by the load average when this starts, at most 4:
+fieldtl.measure.default_workers; numpy, scipy and soundfile release the GIL). All are timed
+REPEATS times, taking turns; the medians are compared. The load average is printed before and
+after: on a shared machine the figures move with it.
 
 Prints the first run apart (it designs the filters), the time one run spends on level takes, decays
 and calibration tones, the one-thread ratio, then the same assessment with every take
@@ -91,17 +92,17 @@ def main() -> None:
     path = Path(sys.argv[1]) if len(sys.argv) > 1 else DEMO
     files = audio_files(load_survey(path))
     load_before = _load()
+    workers = default_workers()          # what fieldtl assess would use now
     start = time.perf_counter()
     first_json = run_assess(path)
     first_s = time.perf_counter() - start
-    workers = default_workers()
     one_thread_s, assess_s, decode_s = [], [], []
     for _ in range(REPEATS):
         start = time.perf_counter()
         assert run_assess(path, workers=1) == first_json   # the same result every time, on any threads
         one_thread_s.append(time.perf_counter() - start)
         start = time.perf_counter()
-        assert run_assess(path) == first_json
+        assert run_assess(path, workers=workers) == first_json
         assess_s.append(time.perf_counter() - start)
         start = time.perf_counter()
         decode_all(files)

@@ -103,9 +103,12 @@ def measure_survey(survey: Survey, *, progress: Progress | None = None,
 
 
 def default_workers() -> int:
-    """Threads that measure a survey's takes: the processor cores this process may use, at most MAX_WORKERS."""
+    """Threads that measure a survey's takes: the processor cores this process may use that other
+    processes do not keep busy (cores minus the whole part of the 1-minute load average), at least
+    one, at most MAX_WORKERS. On a busy machine a second thread only competes for the same cores."""
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
-    return max(1, min(cores, MAX_WORKERS))
+    busy = int(os.getloadavg()[0]) if hasattr(os, "getloadavg") else 0
+    return max(1, min(cores - busy, MAX_WORKERS))
 
 
 class _Runner:

@@ -352,7 +352,7 @@ def test_an_older_store_gains_the_table_and_keeps_its_rows(tmp_path, monkeypatch
 # --- takes measured on several threads ----------------------------------------------------------------
 
 def test_one_thread_and_several_give_the_same_assessment(fresh_demo_json):
-    # fresh_demo_json was measured with the default workers (one per core, at most 4)
+    # fresh_demo_json was measured with the default workers (fieldtl.measure.default_workers)
     survey = load_survey(DEMO / "survey.toml")
     assert document(assess_survey(survey, workers=1)) == fresh_demo_json
     assert document(assess_survey(survey, workers=4)) == fresh_demo_json
@@ -417,3 +417,13 @@ def test_an_error_stops_the_takes_still_being_measured(tmp_path, monkeypatch):
     with pytest.raises(InputError, match="^bad.flac"):
         measure.measure_survey(dataclasses.replace(survey, takes=takes, calibration=None), workers=2)
     assert len(blocks_after_error) < 100
+
+
+@pytest.mark.parametrize(("cores", "load", "workers"), [(2, 0.0, 2), (2, 0.99, 2), (2, 1.0, 1), (2, 7.5, 1),
+                                                         (8, 0.2, 4), (8, 5.0, 3), (1, 0.0, 1)])
+def test_the_default_threads_are_the_cores_other_processes_leave_free(monkeypatch, cores, load, workers):
+    import fieldtl.measure as measure
+
+    monkeypatch.setattr(measure.os, "sched_getaffinity", lambda pid: set(range(cores)), raising=False)
+    monkeypatch.setattr(measure.os, "getloadavg", lambda: (load, 0.0, 0.0), raising=False)
+    assert measure.default_workers() == workers
