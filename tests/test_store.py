@@ -59,10 +59,27 @@ def test_id(store):
     return store.create_test(store.create_project("Invented project").id, AIRBORNE).id
 
 
+def stored_audio(store):
+    """What audio the store holds: its audio folder's listing, or a team server's blobs (its database)."""
+    if hasattr(store, "cache_dir"):
+        with store._database.read() as db:
+            return sorted(r[0] for r in db.execute("SELECT file_name FROM audio_blobs"))
+    return sorted(p.name for p in store.audio_dir.iterdir())
+
+
+def lose_audio(store, take):
+    """Take a take's audio away behind the store's back: its file, or a team server's blob and cached copy."""
+    if hasattr(store, "cache_dir"):
+        with store._database.write() as db:
+            db.execute("DELETE FROM audio_blobs WHERE file_name = ?", (take.file_name,))
+        (store.cache_dir / take.file_name).unlink(missing_ok=True)
+    else:
+        store.take_path(take).unlink()
+
+
 def state(store):
-    """Everything stored: every project with its tests and takes, and the audio folder's listing."""
-    return (tuple(store.snapshot(p.id) for p in store.list_projects()),
-            sorted(p.name for p in store.audio_dir.iterdir()))
+    """Everything stored: every project with its tests and takes, and the stored audio."""
+    return tuple(store.snapshot(p.id) for p in store.list_projects()), stored_audio(store)
 
 
 # --- opening and migrations ------------------------------------------------------------------------
@@ -222,12 +239,12 @@ def test_same_audio_twice_is_one_file_kept_until_pruned(store, test_id):
     data = wav_bytes()
     first = store.add_take(test_id, data=data, original_name="a.wav", role="source")
     second = store.add_take(test_id, data=data, original_name="b.wav", role="source", speaker=2)
-    assert first.file_name == second.file_name and len(list(store.audio_dir.iterdir())) == 1
+    assert first.file_name == second.file_name and stored_audio(store) == [first.file_name]
     store.delete_take(first.id)
-    assert store.clean_files() == () and store.take_path(second).is_file()
+    assert store.clean_files() == () and store.take_path(second).read_bytes() == data
     store.delete_take(second.id)
     assert store.list_takes(test_id) == ()
-    assert store.clean_files() == (store.audio_dir / first.file_name,) and list(store.audio_dir.iterdir()) == []
+    assert [p.name for p in store.clean_files()] == [first.file_name] and stored_audio(store) == []
 
 
 def test_deleting_a_project_deletes_its_tests_and_takes(store, test_id):
@@ -263,7 +280,7 @@ def test_bad_audio_stores_nothing(store, test_id, tmp_path, make, message):
     text = str(caught.value)
     assert text.startswith("Take 3 (bad).wav: ") and "\n" not in text
     assert str(store.audio_dir) not in text and ".incoming-" not in text
-    assert state(store) == before and list(store.audio_dir.iterdir()) == []
+    assert state(store) == before and stored_audio(store) == [] and list(store.audio_dir.iterdir()) == []
 
 
 def test_oversize_take_is_refused_before_anything_is_written(tmp_path):
@@ -288,7 +305,7 @@ def test_oversize_take_is_refused_before_anything_is_written(tmp_path):
 def test_take_descriptions_are_checked(store, test_id, options, message):
     with pytest.raises(InputError, match=rf"^t\.wav\b.*{message}"):
         store.add_take(test_id, data=wav_bytes(), original_name="t.wav", **options)
-    assert store.list_takes(test_id) == () and list(store.audio_dir.iterdir()) == []
+    assert store.list_takes(test_id) == () and stored_audio(store) == []
 
 
 def test_test_type_cannot_change_under_its_takes(store, test_id):
@@ -377,7 +394,7 @@ def test_missing_audio_file_is_a_store_error(store, test_id):
         take = store.add_take(test_id, data=wav_bytes(frequency_hz=300.0 + len(role)), original_name=f"{role}.wav",
                               role=role)
     store.add_take(test_id, data=wav_bytes(), original_name="ir.wav", role="decay", method="impulse")
-    store.take_path(take).unlink()
+    lose_audio(store, take)
     with pytest.raises(StoreError, match="the audio of 'background.wav'"):
         store.survey_for_test(test_id)
 

@@ -63,7 +63,7 @@ def pg_url():
 def store(request, tmp_path):
     """The Store the contract tests use; 'postgresql' here (test_store.py runs them on SQLite)."""
     url = request.getfixturevalue("pg_url")
-    with open_store(url, audio_dir=tmp_path / "pg-audio") as opened:
+    with open_store(url) as opened:       # its audio in the database, cached in this test's data folder
         yield opened
 
 
@@ -75,6 +75,13 @@ def location(request, tmp_path):
     return request.getfixturevalue("pg_url")
 
 
+def _open(location, tmp_path):
+    """The store at ``location``: a SQLite store with its audio folder, or the server (audio in its database)."""
+    if location == tmp_path / "fieldtl.sqlite3":
+        return open_store(location, audio_dir=tmp_path / "audio")
+    return open_store(location)
+
+
 test_id = contract.test_id
 for _name, _test in vars(contract).items():
     if _name.startswith("test_") and callable(_test) and "store" in inspect.signature(_test).parameters:
@@ -84,15 +91,15 @@ for _name, _test in vars(contract).items():
 # --- both backends ---------------------------------------------------------------------------------
 
 def test_the_backend_follows_the_location(location, tmp_path):
-    with open_store(location, audio_dir=tmp_path / "audio") as store:
+    with _open(location, tmp_path) as store:
         assert type(store).__name__ == ("Store" if location == tmp_path / "fieldtl.sqlite3" else "ServerStore")
         project = store.create_project("Invented project")
         assert store.get_project(project.id) == project
 
 
 def test_a_stale_settings_edit_is_refused_and_overwrites_nothing(location, tmp_path):
-    with open_store(location, audio_dir=tmp_path / "audio") as first, \
-            open_store(location, audio_dir=tmp_path / "audio") as second:
+    with _open(location, tmp_path) as first, \
+            _open(location, tmp_path) as second:
         opened = first.create_test(first.create_project("Invented project").id, AIRBORNE)
         mine = second.get_test(opened.id)
         theirs = first.update_test(opened.id, AIRBORNE.__class__(**{**_fields(AIRBORNE), "settings": {"a": 1}}),
@@ -106,8 +113,8 @@ def test_a_stale_settings_edit_is_refused_and_overwrites_nothing(location, tmp_p
 
 def test_a_stale_band_levels_edit_is_refused_and_overwrites_nothing(location, tmp_path):
     levels = "frequency_hz,L1,L2\n100,90,50\n"
-    with open_store(location, audio_dir=tmp_path / "audio") as first, \
-            open_store(location, audio_dir=tmp_path / "audio") as second:
+    with _open(location, tmp_path) as first, \
+            _open(location, tmp_path) as second:
         opened = first.create_test(first.create_project("Invented project").id, AIRBORNE)
         mine = second.get_test(opened.id)
         theirs = first.set_band_levels(opened.id, levels, expected_updated_at=opened.updated_at)   # current: accepted
@@ -125,17 +132,17 @@ def test_a_stale_band_levels_edit_is_refused_and_overwrites_nothing(location, tm
 
 def test_two_writers_adding_takes_at_once_lose_nothing(location, tmp_path):
     count = 15
-    with open_store(location, audio_dir=tmp_path / "audio") as setup:
+    with _open(location, tmp_path) as setup:
         test_id = setup.create_test(setup.create_project("Invented project").id, AIRBORNE).id
 
     def writer(worker):
-        with open_store(location, audio_dir=tmp_path / "audio") as own:
+        with _open(location, tmp_path) as own:
             return [own.add_take(test_id, data=wav_bytes(seconds=0.05, frequency_hz=200.0 + 10 * n + worker),
                                  original_name=f"w{worker}_{n}.wav", role="source").id for n in range(count)]
 
     with ThreadPoolExecutor(max_workers=2) as pool:
         added = [i for ids in pool.map(writer, (1, 2)) for i in ids]
-    with open_store(location, audio_dir=tmp_path / "audio") as store:
+    with _open(location, tmp_path) as store:
         takes = store.list_takes(test_id)
         assert sorted(t.id for t in takes) == sorted(added) and len(set(added)) == 2 * count
         for take in takes:
@@ -145,20 +152,20 @@ def test_two_writers_adding_takes_at_once_lose_nothing(location, tmp_path):
 def test_a_reader_sees_one_consistent_state_while_a_writer_adds_takes(location, tmp_path):
     # Each add_take commits the take and the project's updated_at (the take's created_at) together,
     # so in any one committed state no take is newer than its project's updated_at.
-    with open_store(location, audio_dir=tmp_path / "audio") as setup:
+    with _open(location, tmp_path) as setup:
         project = setup.create_project("Invented project")
         test_id = setup.create_test(project.id, AIRBORNE).id
     done = threading.Event()
 
     def write():
-        with open_store(location, audio_dir=tmp_path / "audio") as own:
+        with _open(location, tmp_path) as own:
             for n in range(25):
                 own.add_take(test_id, data=wav_bytes(seconds=0.02, frequency_hz=300.0 + 7 * n),
                              original_name=f"w{n}.wav", role="source")
         done.set()
 
     seen = []
-    with open_store(location, audio_dir=tmp_path / "audio") as reader:
+    with _open(location, tmp_path) as reader:
         writer = threading.Thread(target=write)
         writer.start()
         while not done.is_set():
@@ -173,9 +180,9 @@ def test_a_reader_sees_one_consistent_state_while_a_writer_adds_takes(location, 
 
 def test_server_schema_has_the_named_migrations_once_and_sqlite_columns(pg_url, tmp_path):
     names = tuple(m.__name__ for m in MIGRATIONS) + tuple(TEAM_BODIES)
-    with open_store(pg_url, audio_dir=tmp_path / "audio") as first:
+    with open_store(pg_url) as first:
         assert first.applied_migrations == names
-    with open_store(pg_url, audio_dir=tmp_path / "audio") as again:
+    with open_store(pg_url) as again:
         assert again.applied_migrations == ()
         assert again.schema_state() == (len(names), names)
         with again._database.read() as db:
@@ -201,7 +208,7 @@ def test_values_survive_the_server_exactly(store):
 @pytest.fixture
 def team(pg_url, tmp_path):
     """The server handle, an owner (ann), a tester (tom), a reviewer (rita), an outsider (olga), one test."""
-    with open_store(pg_url, audio_dir=tmp_path / "audio") as server:
+    with open_store(pg_url) as server:
         for name in ("ann", "tom", "rita", "olga"):
             server.create_account(name, PASSWORD)
         ann = server.login("ann", PASSWORD)
@@ -276,16 +283,19 @@ def test_passwords_are_checked_and_hashed(team, pg_url):
 
 @pytest.mark.skipif(not hasattr(signal, "SIGKILL"), reason="needs POSIX signals")
 def test_a_writer_killed_mid_way_leaves_the_server_consistent(pg_url, tmp_path, monkeypatch):
-    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path))             # the writer's audio folder
+    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "writer"))  # the writer's cache of the server's audio
     writer = start_writer(pg_url, 1, 10_000)
     committed = [int(read_line(writer).split()[1]) for _ in range(5)]
     os.kill(writer.pid, signal.SIGKILL)
     assert writer.wait(timeout=30) == -signal.SIGKILL
-    with open_store(pg_url, audio_dir=tmp_path / "audio") as store:
+    with open_store(pg_url, cache_dir=tmp_path / "reader") as store:    # audio read from the database
         takes = [t for p in store.list_projects() for t in store.snapshot(p.id).takes]
         assert set(committed) <= {t.id for t in takes}
         for take in takes:
             assert hashlib.sha256(store.take_path(take).read_bytes()).hexdigest() == take.sha256
+        with store._database.read() as db:             # the killed transaction's audio went with it
+            blobs = {r[0] for r in db.execute("SELECT file_name FROM audio_blobs")}
+        assert blobs == {t.file_name for t in takes}
         extra = store.add_take(takes[0].test_id, data=wav_bytes(), original_name="after.wav", role="receiving")
         assert store.get_take(extra.id) == extra                      # the write lock died with the writer
 

@@ -30,7 +30,7 @@ ROOT = Path(__file__).resolve().parents[1]
 @pytest.fixture
 def site(pg_url, tmp_path):  # noqa: F811
     """ann owns a project with tests A and B (two takes on A); tom tests, rita reviews; tom's laptop store."""
-    with open_store(pg_url, audio_dir=tmp_path / "server-audio") as server:
+    with open_store(pg_url) as server:        # its audio in the database; this process's cache in FIELDTL_DATA_DIR
         for name in ("ann", "tom", "rita"):
             server.create_account(name, PASSWORD)
         ann = server.login("ann", PASSWORD)
@@ -51,6 +51,12 @@ def _server_state(store, project_id):
     for take in snapshot.takes:
         assert hashlib.sha256(store.take_path(take).read_bytes()).hexdigest() == take.sha256
     return snapshot
+
+
+def _blobs(store):
+    """The audio the server holds (its audio_blobs table), by content name."""
+    with store._database.read() as db:
+        return {r[0] for r in db.execute("SELECT file_name FROM audio_blobs")}
 
 
 def _local_test(laptop, local_project, title):
@@ -124,8 +130,8 @@ import sys
 from fieldtl.store import Store
 from fieldtl.store.location import open_store
 from fieldtl.store.offline import push
-url, laptop_path, audio, project = sys.argv[1:5]
-with open_store(url, audio_dir=__import__("pathlib").Path(audio)) as server, Store.open(laptop_path) as laptop:
+url, laptop_path, project = sys.argv[1:4]
+with open_store(url) as server, Store.open(laptop_path) as laptop:
     push(laptop, server.login("tom", "%s"), int(project))
 print("pushed", flush=True)
 """ % PASSWORD
@@ -141,13 +147,14 @@ def test_a_push_killed_half_way_changes_nothing_and_can_be_repeated(site):
         laptop.add_take(local_a.id, data=wav_bytes(seconds=0.05, frequency_hz=800.0 + 10 * n),
                         original_name=f"k{n}.wav", role="receiving")
     before = _server_state(ann, site["project"].id)
+    blobs_before = _blobs(ann)
     with psycopg.connect(site["url"]) as blocker, psycopg.connect(site["url"], autocommit=True) as watcher:
         # Hold the project row: the push inserts every take, then waits to touch the project.
         blocker.execute("SELECT 1 FROM projects WHERE id = %s FOR NO KEY UPDATE", (site["project"].id,))
         env = dict(os.environ, PYTHONPATH=str(ROOT))
+        env["FIELDTL_DATA_DIR"] = str(site["tmp"] / "pusher")          # the pusher's own cache
         writer = subprocess.Popen([sys.executable, "-c", PUSHER, site["url"], str(laptop.folder / "fieldtl.sqlite3"),
-                                   str(site["tmp"] / "server-audio"), str(local)],
-                                  stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+                                   str(local)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
         deadline = time.monotonic() + 60
         while watcher.execute("SELECT count(*) FROM pg_stat_activity WHERE wait_event_type = 'Lock' "
                               "AND query LIKE 'UPDATE projects%'").fetchone()[0] == 0:
@@ -156,10 +163,13 @@ def test_a_push_killed_half_way_changes_nothing_and_can_be_repeated(site):
             time.sleep(0.01)
         inserted = watcher.execute("SELECT count(*) FROM pg_locks WHERE locktype = 'advisory' AND granted").fetchone()
         assert inserted[0] == 1                                    # the push holds the write lock, mid-way
+        assert _blobs(ann) == blobs_before                         # its audio is not visible outside it
         os.kill(writer.pid, signal.SIGKILL)
         assert writer.wait(timeout=30) == -signal.SIGKILL
         blocker.rollback()                                         # let the dead push's transaction end
     assert _server_state(ann, site["project"].id) == before        # none of it
+    assert _blobs(ann) == blobs_before                             # not even its audio
     done = push(laptop, tom, local)                                # and it can be repeated
     assert done.pushed and done.takes_added == 20
+    assert len(_blobs(ann)) == len(blobs_before) + 20
     assert len(_server_state(ann, site["project"].id).takes) == len(before.takes) + 20

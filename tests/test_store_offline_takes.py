@@ -202,17 +202,17 @@ def test_a_push_that_fails_half_way_sends_none_of_it(site):
     assert [t.original_name for t in laptop.list_takes(local_a.id)][-1] == "new.wav"   # nothing lost here
 
 
-def test_a_push_copies_only_audio_the_server_lacks(site, monkeypatch):
-    import fieldtl.store.offline as offline
+def test_a_push_sends_only_audio_the_server_lacks(site, monkeypatch):
+    import fieldtl.store.pg_blobs as pg_blobs
     tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
     local, local_a, _ = _checked_out(site)
     laptop.add_take(local_a.id, data=wav_bytes(frequency_hz=1300.0), original_name="new.wav", role="receiving")
-    copied = []
-    real_copy = offline.copy_checked
-    monkeypatch.setattr(offline, "copy_checked", lambda source, *a: copied.append(source.name) or real_copy(source, *a))
+    sent = []
+    real_read = pg_blobs._checked_read
+    monkeypatch.setattr(pg_blobs, "_checked_read", lambda path, sha: sent.append(path.name) or real_read(path, sha))
     assert push(laptop, tom, local).takes_added == 1
     new = _by_name(ann.list_takes(site["a"].id), "new.wav")
-    assert copied == [new.file_name]                                    # not the two checked-out recordings
+    assert sent == [new.file_name]                                      # not the two checked-out recordings
     assert _server_state(ann, site["project"].id)                       # every stored file matches its SHA-256
 
 

@@ -117,8 +117,8 @@ def _write_archive(store: Store, snapshot: ProjectSnapshot, handle: IO[bytes]) -
     with zipfile.ZipFile(handle, "w", allowZip64=True) as archive:
         archive.writestr(MANIFEST_NAME, json.dumps(manifest, ensure_ascii=False, indent=1, allow_nan=False),
                          compress_type=zipfile.ZIP_DEFLATED)
-        for file_name, sha256 in sorted({(t.file_name, t.sha256) for t in snapshot.takes}):
-            _copy_verified(store.audio_dir / file_name, sha256, archive, f"audio/{file_name}", store.name)
+        for take in sorted({t.file_name: t for t in snapshot.takes}.values(), key=lambda t: t.file_name):
+            _copy_verified(store.take_path(take), take.sha256, archive, f"audio/{take.file_name}", store.name)
 
 
 def _test_entry(test: TestRecord, takes: list[TakeRecord]) -> dict[str, Any]:

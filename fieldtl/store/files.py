@@ -1,5 +1,8 @@
 """The store's audio folder: durable writes, content names, whole-file checks, leftovers.
 
+(A device's SQLite store keeps its audio here; a team server keeps its audio in PostgreSQL and
+each client its own cache folder of it, fieldtl.store.pg_blobs.)
+
 A take's audio is written to an ``.incoming-<random>`` name, flushed to disk, checked, then
 renamed to ``<sha256>.<wav|flac>`` under the store's write lock. A killed process can leave an
 unreferenced content file, an ``.incoming-*`` file or an archive's ``*.part`` file;
@@ -11,7 +14,8 @@ from __future__ import annotations
 import os
 import time
 import uuid
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator, Mapping
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -79,6 +83,23 @@ def place_file(folder: Path, incoming: Path, file_name: str) -> bool:
     os.replace(incoming, target)
     fsync_folder(folder)
     return True
+
+
+@contextmanager
+def placed_files(folder: Path, files: Mapping[str, Path]) -> Iterator[None]:
+    """Move checked files (content name → received file) into ``folder`` for the rows the block
+    writes (call under the write lock); if the block fails, the files placed for it are removed
+    (still under the lock: nobody else can refer to them yet)."""
+    created: list[Path] = []
+    try:
+        for name, path in files.items():
+            if place_file(folder, path, name):
+                created.append(folder / name)
+        yield
+    except BaseException:
+        for path in created:
+            path.unlink(missing_ok=True)
+        raise
 
 
 def fsync_folder(folder: Path) -> None:

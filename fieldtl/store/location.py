@@ -35,13 +35,20 @@ def check_store_url(url: str, what: str) -> None:
         raise InputError(f"{what}: expected a postgresql://user@host/database URL, got {url[:40]!r}")
 
 
-def open_store(location: str | Path | None = None, *, audio_dir: Path | None = None) -> Store:
+def open_store(location: str | Path | None = None, *, audio_dir: Path | None = None,
+               cache_dir: Path | None = None) -> Store:
     """The store at ``location`` (a postgresql:// URL or a SQLite path; None: :func:`configured_location`).
 
-    A server store is the server's own handle; the app logs accounts in on it (ServerStore.login).
+    ``audio_dir`` is a SQLite store's audio folder; ``cache_dir`` this client's cache of a team
+    server's audio (which the server keeps in its database). A server store is the server's own
+    handle; the app logs accounts in on it (ServerStore.login).
     """
     location = configured_location() if location is None else location
     if is_server_url(location):
+        if audio_dir is not None:
+            raise InputError("a team server keeps its audio in its database: give no audio folder for it")
         from fieldtl.store.postgres import ServerStore     # psycopg only when a server is used
-        return ServerStore.open(str(location), audio_dir=audio_dir)
+        return ServerStore.open(str(location), cache_dir=cache_dir)
+    if cache_dir is not None:
+        raise InputError("a team-server cache folder applies to a postgresql:// store only")
     return Store.open(location, audio_dir=audio_dir)

@@ -22,9 +22,11 @@ server copy with its fields as they were). :func:`checked_out_projects` lists th
   test here too: its settings, its takes' fields and removals; takes added here are still sent);
 * tests made offline are added; a test deleted on the server meanwhile is added again.
 
-Only audio the server's folder lacks is copied, before the transaction (which then only renames
-files into place). A push killed half-way leaves the server as it was (the transaction rolls back; audio files
-placed for it are unreferenced until ``clean_files``); it can simply be repeated.
+The audio goes in the same transaction (fieldtl.store.pg_blobs): what the server lacks is sent
+first, before the transaction takes the write lock (other writers do not wait for the upload),
+and is kept under the lock with the rows. A push killed half-way leaves the server exactly as it
+was, audio included (the transaction rolls back); it can simply be repeated. Check-out copies
+the audio from the server through this device's cache of it (never its own audio folder).
 """
 
 from __future__ import annotations
@@ -34,8 +36,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from fieldtl.errors import InputError, StoreError
-from fieldtl.store import rows
+from fieldtl.errors import InputError
+from fieldtl.store import pg_blobs, rows
 from fieldtl.store.files import place_file
 from fieldtl.store.offline_plan import (FieldDifference, SettingsConflict, TestWork, plan, settings_of,
                                         take_fields_of)
@@ -125,40 +127,21 @@ def push(local: Store, server: ServerStore, local_project_id: int, *,
     record_path = record_folder(local) / f"{local_project_id}.json"
     mine = local.snapshot(local_project_id)
     server_project = int(record["server_project_id"])
-    incoming: dict[str, Path] = {}
-    placed: list[Path] = []
-    try:
-        for take in mine.takes:     # copied before the transaction (it only renames them), unless there already
-            if take.file_name not in incoming and not _on_server(server, take, local.take_path(take)):
-                incoming[take.file_name] = copy_checked(local.take_path(take), server.incoming_path(), take.sha256)
-        with server._guard("push", "project", server_project, WRITE), server._write() as db:
-            server._project(db, server_project)
-            conflicts, work = plan(db, mine, record, resolve)
-            if conflicts:
-                return PushResult(False, tuple(conflicts), 0, 0, 0)
-            gone = {t.file_name for w in work for t in w.server_adds if t.file_name not in incoming
-                    and not _on_server(server, t, local.take_path(t))}
-            if gone:                 # removed by a clean meanwhile (under the write lock nothing goes now)
-                raise StoreError(f"push: the audio of {len(gone)} take(s) left the server's audio folder while "
-                                 "the push was starting; nothing was sent, push again")
-            try:
-                for name, path in incoming.items():
-                    if place_file(server.audio_dir, path, name):
-                        placed.append(server.audio_dir / name)
-                _apply_on_server(db, work, server_project)
-                # The new tests' server ids go to the record before COMMIT: should the process die after
-                # COMMIT, a repeated push finds them instead of adding them twice (their takes then merge by
-                # content); every other entry stays as it was until the push is done.
-                write_record(record_path, record | {"tests": record["tests"] | {
-                    str(w.test.id): {"server_test_id": w.server_test_id, "base": settings_of(w.test), "takes": {}}
-                    for w in work if w.server_test is None}})
-            except BaseException:
-                for placed_path in placed:   # still under the write lock: nobody else can refer to them yet
-                    placed_path.unlink(missing_ok=True)
-                raise
-    finally:
-        for incoming_path in incoming.values():
-            incoming_path.unlink(missing_ok=True)
+    audio = {t.file_name: (local.take_path(t), t.sha256) for t in mine.takes}
+    with server._guard("push", "project", server_project, WRITE), \
+            server._write(before_lock=lambda db: pg_blobs.stage(db, audio)) as db:
+        server._project(db, server_project)
+        conflicts, work = plan(db, mine, record, resolve)
+        if conflicts:
+            return PushResult(False, tuple(conflicts), 0, 0, 0)
+        pg_blobs.keep_staged(db, {t.file_name for w in work for t in w.server_adds}, audio)
+        _apply_on_server(db, work, server_project)
+        # The new tests' server ids go to the record before COMMIT: should the process die after
+        # COMMIT, a repeated push finds them instead of adding them twice (their takes then merge by
+        # content); every other entry stays as it was until the push is done.
+        write_record(record_path, record | {"tests": record["tests"] | {
+            str(w.test.id): {"server_test_id": w.server_test_id, "base": settings_of(w.test), "takes": {}}
+            for w in work if w.server_test is None}})
     _apply_here(local, server, work)
     for w in work:
         base = settings_of(w.server_test if w.settings == "server" and w.server_test else w.test)
@@ -230,15 +213,6 @@ def _apply_here(local: Store, server: ServerStore, work: list[TestWork]) -> None
     finally:
         for path in files.values():
             path.unlink(missing_ok=True)
-
-
-def _on_server(server: ServerStore, take: Any, here: Path) -> bool:
-    """The server's audio folder holds the take's audio already (content-named, of the same size)."""
-    there = server.audio_dir / take.file_name
-    try:
-        return there.is_file() and there.stat().st_size == here.stat().st_size
-    except OSError:
-        return False
 
 
 def _counts(work: list[TestWork]) -> tuple[int, int, int, int, int]:

@@ -61,7 +61,7 @@ class AccountRules:
     def login(self, name: str, password: str) -> Any:
         """The account's handle (sharing this store's pool); PermissionDenied if name or password is wrong."""
         account = self._verified(name, password)
-        return type(self)(self._database, audio_dir=self.audio_dir, max_take_bytes=self.max_take_bytes,  # type: ignore[call-arg,attr-defined]
+        return type(self)(self._database, cache_dir=self.cache_dir, max_take_bytes=self.max_take_bytes,  # type: ignore[call-arg,attr-defined]
                           account=account, owns_database=False)
 
     def change_password(self, current_password: str, new_password: str) -> None:

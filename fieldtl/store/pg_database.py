@@ -4,9 +4,9 @@ transactions the store's statements run in (the same statements as SQLite's).
 Writes are serialised by one transaction-level advisory lock, taken first: the store checks
 what it is about to change and then changes it inside one transaction (a take must suit its
 test's type, a stale settings edit is refused), which SQLite's ``BEGIN IMMEDIATE`` makes safe
-and this lock makes safe here. Write transactions are short (audio is checked and written to
-its file before the transaction starts), so many testers adding takes at once queue for
-milliseconds and none is lost. Reads run in REPEATABLE READ, READ ONLY transactions: every
+and this lock makes safe here. Write transactions are short (audio is checked before the
+transaction starts, and a push sends its audio before it takes the lock), so many testers adding
+takes at once queue for milliseconds and none is lost. Reads run in REPEATABLE READ, READ ONLY transactions: every
 query of one read sees one committed state, and readers never wait for writers.
 
 Parameters are always bound: the store writes ``?`` and this module hands psycopg ``%s``.
@@ -14,7 +14,7 @@ Parameters are always bound: the store writes ``?`` and this module hands psycop
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from typing import Any
 
@@ -85,9 +85,12 @@ class PgDatabase:
         self._pool.close()
 
     @contextmanager
-    def write(self) -> Iterator[Session]:
-        """One write transaction, holding the store's write lock until COMMIT or ROLLBACK."""
+    def write(self, *, before_lock: Callable[[Session], None] | None = None) -> Iterator[Session]:
+        """One write transaction, holding the store's write lock until COMMIT or ROLLBACK;
+        ``before_lock`` runs first in the same transaction (a push sends its audio there)."""
         with self._transaction("write failed and was undone") as session:
+            if before_lock is not None:
+                before_lock(session)
             session.execute("SELECT pg_advisory_xact_lock(?)", (WRITE_LOCK_KEY,))
             yield session
 

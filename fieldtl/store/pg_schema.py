@@ -7,9 +7,10 @@ row readers serve both databases. Only the types differ: ids are identity column
 checked by a cast to jsonb instead of SQLite's json_valid(). Timestamps stay ISO 8601 texts, as
 the store writes them.
 
-:data:`TEAM_MIGRATIONS` exist on the server only: accounts, per-project roles, sign-offs and
+:data:`TEAM_BODIES` exist on the server only: accounts, per-project roles, sign-offs and
 the audit table filled by triggers, so every change is recorded with who made it, whatever
-statement made it, in the same transaction. Both kinds are recorded in ``schema_migrations``.
+statement made it, in the same transaction; and the takes' audio (``audio_blobs``), which a
+device's SQLite store keeps as files instead. Both kinds are recorded in ``schema_migrations``.
 """
 
 from __future__ import annotations
@@ -186,5 +187,17 @@ TEAM_BODIES: dict[str, tuple[str, ...]] = {
         *(f"CREATE TRIGGER {table}_audit AFTER INSERT OR UPDATE OR DELETE ON {table} "
           "FOR EACH ROW EXECUTE FUNCTION fieldtl_audit()"
           for table in ("projects", "tests", "takes", "project_roles", "sign_offs")),
+    ),
+    # The takes' audio, by content name (fieldtl.store.pg_blobs): written in the same transaction as
+    # the take rows naming it, so one pg_dump holds everything and a push is atomic with its audio.
+    # The database itself refuses a blob whose bytes are not what its name says (SHA-256, FIPS 180-4).
+    # EXTERNAL storage: out of line and uncompressed (WAV and FLAC barely compress), so a client
+    # reads a blob in slices without the server decompressing the whole value for each.
+    "team_0002_audio_blobs": (
+        """CREATE TABLE audio_blobs (
+            file_name TEXT PRIMARY KEY CHECK (file_name ~ '^[0-9a-f]{64}[.](wav|flac)$'),
+            size_bytes BIGINT NOT NULL CHECK (size_bytes = octet_length(data)),
+            data BYTEA NOT NULL CHECK (encode(sha256(data), 'hex') = left(file_name, 64)))""",
+        "ALTER TABLE audio_blobs ALTER COLUMN data SET STORAGE EXTERNAL",
     ),
 }

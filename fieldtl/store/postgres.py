@@ -14,29 +14,35 @@ PermissionDenied (a StoreError, one line) when the role does not allow it:
 An account sees only the projects it has a role on, and owns the projects it creates. Each write
 records the account in the transaction (``fieldtl.user``), and triggers write the audit rows.
 
-Audio stays content-addressed in a folder (``audio_dir``; on several app servers a shared
-folder): the analysis reads recordings from files in blocks, a file is durable before the row
-naming it commits (as in SQLite), and the database stays small for backups and replicas.
+Audio is kept in the database itself, content-addressed (``audio_blobs``, fieldtl.store.pg_blobs),
+in the same transaction as the take rows naming it: a ``postgresql://`` URL and an account are all
+a device needs, one ``pg_dump`` holds everything, and a push is atomic with its audio. The
+analysis reads recordings from files, so :meth:`ServerStore.take_path` returns this client's
+cached copy (``cache_dir``, by default ``DATA_DIR/team-cache/<digest of the server>``), fetched
+and checked on first use; it is never the folder of the device's own SQLite store.
 """
 
 from __future__ import annotations
 
 import functools
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from contextvars import ContextVar
 from dataclasses import dataclass
-from pathlib import Path
+from pathlib import Path, PurePath, PurePosixPath
 from typing import Any
 
+from fieldtl.errors import StoreError
+from fieldtl.store import pg_blobs
 from fieldtl.store.connection import default_data_dir
 from fieldtl.store.errors import PermissionDenied
+from fieldtl.store.files import STALE_INCOMING_S, place_file
 from fieldtl.store.measurements import MeasurementRows
 from fieldtl.store.pg_accounts import MIN_PASSWORD_CHARS, Account, AccountRules, Member  # noqa: F401 - re-exported
 from fieldtl.store.pg_database import PgDatabase, Session
 from fieldtl.store.pg_schema import PROJECT_ROLES
-from fieldtl.store.schema import Project, check_text, utc_now
-from fieldtl.store.sqlite import AUDIO_FOLDER, DEFAULT_MAX_TAKE_BYTES, Store
+from fieldtl.store.schema import Project, TakeRecord, check_text, utc_now
+from fieldtl.store.sqlite import DEFAULT_MAX_TAKE_BYTES, Store
 from fieldtl.validate import NOTE_CHARS, echo
 
 READ = frozenset(PROJECT_ROLES)
@@ -91,22 +97,28 @@ class PgMeasurementRows(MeasurementRows):
 class ServerStore(AccountRules, Store):
     """A Store on PostgreSQL; ``account`` None is the server's own handle (no role checks)."""
 
-    def __init__(self, database: PgDatabase, *, audio_dir: Path, max_take_bytes: int,
+    def __init__(self, database: PgDatabase, *, cache_dir: Path, max_take_bytes: int,
                  account: Account | None, owns_database: bool) -> None:
-        super().__init__(database, folder=None, audio_dir=audio_dir, max_take_bytes=max_take_bytes, scratch=None)  # type: ignore[arg-type]
+        # audio_dir (the Store's name): where this client's files of the server's audio are, its cache
+        super().__init__(database, folder=None, audio_dir=cache_dir, max_take_bytes=max_take_bytes, scratch=None)  # type: ignore[arg-type]
+        self.cache_dir = cache_dir
         self.account = account
         self._owns_database = owns_database
         self.measurements = PgMeasurementRows(database)   # type: ignore[arg-type]
         self._write, self._read = self._checked_write, self._checked_read   # type: ignore[method-assign]
 
     @classmethod
-    def open(cls, url: str | Path, *, audio_dir: Path | None = None,   # type: ignore[override]
+    def open(cls, url: str | Path, *, cache_dir: Path | None = None,   # type: ignore[override]
              max_take_bytes: int = DEFAULT_MAX_TAKE_BYTES) -> ServerStore:
-        """Connect (creating and migrating the schema if needed); audio in ``audio_dir``, by default
-        the ``audio`` folder of the user's data folder (FIELDTL_DATA_DIR)."""
-        audio_dir = default_data_dir() / AUDIO_FOLDER if audio_dir is None else Path(audio_dir)
-        audio_dir.mkdir(parents=True, exist_ok=True)
-        return cls(PgDatabase(str(url)), audio_dir=audio_dir, max_take_bytes=max_take_bytes, account=None,
+        """Connect (creating and migrating the schema if needed); the audio read from the server is
+        cached in ``cache_dir``, by default ``team-cache/<digest of the server>`` in the user's data
+        folder (FIELDTL_DATA_DIR)."""
+        cache_dir = pg_blobs.cache_dir_for(str(url), default_data_dir()) if cache_dir is None else Path(cache_dir)
+        try:
+            cache_dir.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise StoreError(f"cannot make the folder for the team server's audio ({exc.strerror or exc})") from None
+        return cls(PgDatabase(str(url)), cache_dir=cache_dir, max_take_bytes=max_take_bytes, account=None,
                    owns_database=True)
 
     def close(self) -> None:
@@ -131,9 +143,26 @@ class ServerStore(AccountRules, Store):
                                (self.account.id,)).fetchall()
         return tuple(Project(*r) for r in found)
 
-    def clean_files(self, **kwargs: Any) -> tuple[Path, ...]:
-        self._require_admin("remove unused audio files")
-        return super().clean_files(**kwargs)
+    def take_path(self, take: TakeRecord) -> Path:
+        """This client's copy of the take's audio, fetched from the server on first use (an account
+        needs a role on the take's project); StoreError if the server lacks it."""
+        path = self.cache_dir / take.file_name
+        if not path.is_file():
+            with self._guard("read the audio of", "take", take.id, READ), self._read() as db:
+                if not pg_blobs.fetch(db, take.file_name, take.sha256, path):
+                    raise StoreError(f"the audio of {echo(take.original_name)} is missing from the team server")
+        return path.resolve()
+
+    def clean_files(self, *, stale_s: float = STALE_INCOMING_S) -> tuple[PurePath, ...]:   # type: ignore[override]
+        """Remove the audio no take names from the server (under the write lock; returned as
+        ``audio_blobs/<name>``), then this client's cached copies of audio no take names and its
+        unfinished fetches older than ``stale_s``."""
+        self._require_admin("remove unused audio")
+        with self._write() as db:
+            removed = pg_blobs.remove_unused(db)
+            used = {r[0] for r in db.execute("SELECT DISTINCT file_name FROM takes")}
+        pg_blobs.clear_cache(self.cache_dir, used, stale_s=stale_s)
+        return tuple(PurePosixPath("audio_blobs", name) for name in removed)
 
     # --- review ------------------------------------------------------------------------------------
 
@@ -177,12 +206,28 @@ class ServerStore(AccountRules, Store):
             _NEED.reset(token)
 
     @contextmanager
-    def _checked_write(self) -> Iterator[Session]:
-        with self._database.write() as db:   # type: ignore[attr-defined]
+    def _placed(self, db: Session, files: Mapping[str, Path]) -> Iterator[None]:   # type: ignore[override]
+        """The audio goes into the rows' transaction (a rollback takes it back); the received files
+        then become this client's cached copies (content-named, so right whether or not it commits)."""
+        pg_blobs.put(db, files)
+        yield
+        for name, path in files.items():
+            place_file(self.cache_dir, path, name)
+
+    @contextmanager
+    def _checked_write(self, *, before_lock: Callable[[Session], None] | None = None) -> Iterator[Session]:
+        """A write transaction as this account; ``before_lock`` (a push's upload) runs once the role
+        is checked, before the write lock is taken; the role is checked again under the lock."""
+        def prepare(db: Session) -> None:
             name = "(server)" if self.account is None else self.account.name
             user_id = "" if self.account is None else str(self.account.id)
             db.execute("SELECT set_config('fieldtl.user', ?, true), set_config('fieldtl.user_id', ?, true)",
                        (name, user_id))
+            if before_lock is not None:
+                self._check_role(db)
+                before_lock(db)
+
+        with self._database.write(before_lock=prepare) as db:   # type: ignore[attr-defined]
             self._check_role(db)
             yield db
 

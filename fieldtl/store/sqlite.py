@@ -4,7 +4,8 @@ Every write is one ``BEGIN IMMEDIATE ... COMMIT`` transaction (rolled back on an
 journal is WAL with ``synchronous=FULL``, and an audio file is written, flushed to disk and
 renamed into place *before* the row naming it commits: a committed take always has its file,
 whatever happens to the process. A killed writer can leave at most an unreferenced file, which
-:meth:`Store.clean_files` removes.
+:meth:`Store.clean_files` removes. (The team server, fieldtl.store.postgres, keeps its audio in
+PostgreSQL instead, and its clients cache it outside this folder.)
 
 One Store may be shared between threads (Streamlit's ``st.cache_resource``): a lock serialises
 its use of the connection. Several processes may open the same database at once.
@@ -15,6 +16,7 @@ from __future__ import annotations
 import sqlite3
 import tempfile
 from collections.abc import Mapping
+from contextlib import AbstractContextManager
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
@@ -24,7 +26,7 @@ from fieldtl.errors import InputError, StoreError
 from fieldtl.store import rows
 from fieldtl.store.connection import Database
 from fieldtl.store.errors import refuse_stale
-from fieldtl.store.files import (STALE_INCOMING_S, WHOLE_READ_ROLES, check_audio_file, incoming_name, place_file,
+from fieldtl.store.files import (STALE_INCOMING_S, WHOLE_READ_ROLES, check_audio_file, incoming_name, placed_files,
                                  remove_unused, write_durably)
 from fieldtl.store.complaints import CLIPS_FOLDER, ComplaintRows
 from fieldtl.store.measurements import MeasurementRows
@@ -232,14 +234,9 @@ class Store:
             with self._write() as db:
                 test = self._test(db, test_id)            # as it is now, under the write lock
                 check_take_fields(test.setup.test_type, **fields, where=original_name)
-                created = place_file(self.audio_dir, incoming, audio.file_name)
-                try:
+                with self._placed(db, {audio.file_name: incoming}):
                     take_id = rows.insert_take(db, row)
                     rows.touch_project(db, test.project_id, row["created_at"])
-                except BaseException:
-                    if created:          # still under the write lock: nobody else can refer to it yet
-                        (self.audio_dir / audio.file_name).unlink(missing_ok=True)
-                    raise
         finally:
             incoming.unlink(missing_ok=True)
         return TakeRecord(id=take_id, **row)
@@ -352,21 +349,12 @@ class Store:
         """
         project = replace(snapshot.project, updated_at=utc_now())
         check_snapshot(snapshot, files)
-        with self._write() as db:
-            created: list[Path] = []
-            try:
-                project_id = rows.insert_project(db, project)
-                new_test_ids = {test.id: rows.insert_test(db, project_id, test) for test in snapshot.tests}
-                for name, path in files.items():
-                    if place_file(self.audio_dir, path, name):
-                        created.append(self.audio_dir / name)
-                for take in snapshot.takes:
-                    row = {c: getattr(take, c) for c in rows.TAKE_COLUMNS}
-                    rows.insert_take(db, row | {"test_id": new_test_ids[take.test_id]})
-            except BaseException:
-                for path in created:     # still under the write lock: nobody else can refer to them yet
-                    path.unlink(missing_ok=True)
-                raise
+        with self._write() as db, self._placed(db, files):
+            project_id = rows.insert_project(db, project)
+            new_test_ids = {test.id: rows.insert_test(db, project_id, test) for test in snapshot.tests}
+            for take in snapshot.takes:
+                row = {c: getattr(take, c) for c in rows.TAKE_COLUMNS}
+                rows.insert_take(db, row | {"test_id": new_test_ids[take.test_id]})
         return replace(project, id=project_id)
 
     def incoming_path(self) -> Path:
@@ -374,6 +362,10 @@ class Store:
         return self.audio_dir / incoming_name()
 
     # --- internals ---------------------------------------------------------------------------------
+
+    def _placed(self, db: Any, files: Mapping[str, Path]) -> AbstractContextManager[None]:
+        """Keep checked audio (content name → received file) for the rows written in the block."""
+        return placed_files(self.audio_dir, files)
 
     def _project(self, db: sqlite3.Connection, project_id: int) -> Project:
         row = db.execute("SELECT * FROM projects WHERE id = ?", (project_id,)).fetchone()
