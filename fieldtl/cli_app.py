@@ -57,7 +57,7 @@ def run_app(args: argparse.Namespace) -> int:
     env = {k: v for k, v in os.environ.items() if k != access.ENV_VAR}
     env["FIELDTL_DATA_DIR"] = str(data_dir)
     from fieldtl.store.location import STORE_URL_VARIABLE, check_store_url
-    if args.store is not None:          # the team server (fieldtl.store.location); its audio in data_dir
+    if args.store is not None:          # the team server (fieldtl.store.location): audio in its database
         check_store_url(args.store, "--store")
         env[STORE_URL_VARIABLE] = args.store
     server = env.get(STORE_URL_VARIABLE, "").strip()
@@ -76,7 +76,7 @@ def run_app(args: argparse.Namespace) -> int:
     urls = ", ".join(f"{scheme}://{a}:{args.port}" for a in reachable_addresses(args.host))   # never 0.0.0.0
     if server:
         from fieldtl.store.pg_database import shown_url
-        print(f"fieldtl app on {urls}  (team server {shown_url(server)}, audio in {data_dir}); Ctrl+C stops it")
+        print(f"fieldtl app on {urls}  (team server {shown_url(server)}, data folder {data_dir}); Ctrl+C stops it")
     else:
         print(f"fieldtl app on {urls}  (store: {data_dir}); Ctrl+C stops it")
     print(f"CAUTION: {CAUTIONS[0]}\nCAUTION: {CAUTIONS[1]}")

@@ -79,9 +79,14 @@ def run_team(args: argparse.Namespace) -> int:
     from fieldtl.store.location import check_store_url
 
     check_store_url(url, "--store")
+    from fieldtl.store.pg_blobs import cache_dir_for
     from fieldtl.store.postgres import ServerStore
 
-    with ServerStore.open(url) as server:
+    # the server keeps its audio in its database; what a check-out reads of it is cached in this
+    # device's data folder (--data-dir), apart from the device's own audio folder
+    data_dir = getattr(args, "data_dir", None)
+    cache_dir = None if data_dir is None else cache_dir_for(url, data_dir.expanduser())
+    with ServerStore.open(url, cache_dir=cache_dir) as server:
         if args.team_action == "init":
             applied = server.applied_migrations
             print(f"schema: migrations applied: {', '.join(applied)}" if applied else "schema: up to date")

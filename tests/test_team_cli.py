@@ -1,9 +1,11 @@
 """`fieldtl team` and `fieldtl app --store`: set up a team server from the command line.
 
 Runs against the real PostgreSQL server scripts/test starts (FIELDTL_TEST_PG_URL); checks are the
-command's exit status (2 for bad input, as every fieldtl command) and what the server then holds.
+command's exit status (2 for bad input, as every fieldtl command) and what the server then holds
+(its audio read back from the database, hashlib.sha256, FIPS 180-4).
 """
 
+import hashlib
 import subprocess
 import sys
 from dataclasses import replace
@@ -26,7 +28,7 @@ def test_init_creates_the_schema_and_the_first_administrator(pg_url, monkeypatch
     assert capsys.readouterr().err.strip() == "fieldtl: account 'ann' exists already"
     monkeypatch.setenv("FIELDTL_STORE_URL", pg_url)                                      # --store from the environment
     assert main(["team", "account", "tom"]) == 0
-    with open_store(pg_url, audio_dir=tmp_path / "audio") as server:
+    with open_store(pg_url) as server:
         ann = server.login("ann", "invented-password-1")
         assert ann.account.is_admin
         project = ann.create_project("Invented project")
@@ -67,26 +69,35 @@ def test_checkout_and_push_from_the_command_line(pg_url, monkeypatch, capsys, tm
     monkeypatch.setenv("FIELDTL_PASSWORD", "invented-password-1")
     monkeypatch.setenv("FIELDTL_STORE_URL", pg_url)
     assert main(["team", "init", "--owner", "ann"]) == 0
-    with open_store(pg_url) as server:                     # audio in FIELDTL_DATA_DIR, as the command's
+    with open_store(pg_url, cache_dir=tmp_path / "office") as server:     # the audio is in the database
         ann = server.login("ann", "invented-password-1")
         test = ann.create_test(ann.create_project("Invented project").id, AIRBORNE)
+        office = ann.add_take(test.id, data=wav_bytes(frequency_hz=440.0), original_name="office.wav", role="source")
         laptop = ["--account", "ann", "--data-dir", str(tmp_path / "laptop")]
-        assert main(["team", "checkout", str(test.project_id), *laptop]) == 0
+        assert main(["team", "checkout", str(test.project_id), *laptop]) == 0    # no folder of the server's needed
         local_project = int(capsys.readouterr().out.split("checked out as project ")[1].split()[0])
+        # read from the server's database through the laptop's cache, then kept in the laptop's own store
+        assert [p.parent.name for p in (tmp_path / "laptop" / "team-cache").glob("*/*")] != []
         with open_store(tmp_path / "laptop" / "fieldtl.sqlite3") as local:
             local_test = local.list_tests(local_project)[0]
+            (copied,) = local.list_takes(local_test.id)
+            assert hashlib.sha256(local.take_path(copied).read_bytes()).hexdigest() == office.sha256
+            assert local.take_path(copied).parent == tmp_path / "laptop" / "audio"
             local.add_take(local_test.id, data=wav_bytes(), original_name="site.wav", role="source")
             local.update_test(local_test.id, replace(AIRBORNE, settings={"here": 1}))
         ann.update_test(test.id, replace(AIRBORNE, settings={"there": 1}))
         assert main(["team", "push", str(local_project), *laptop]) == 1           # a conflict: nothing sent
         out = capsys.readouterr().out
         assert f"test {local_test.id}: test 'Bedroom 4 to bedroom 7': app setting here, app setting there changed here and on the server" in out
-        assert ann.list_takes(test.id) == ()
+        assert ann.list_takes(test.id) == (office,)
         assert main(["team", "push", str(local_project), *laptop, "--mine", str(local_test.id)]) == 0
         assert ("pushed: 1 takes and 0 tests added, 1 tests' settings and 0 takes' details updated, "
                 "0 takes removed") in capsys.readouterr().out
         assert ann.get_test(test.id).setup.settings == {"here": 1}
-        assert [t.original_name for t in ann.list_takes(test.id)] == ["site.wav"]
+        assert [t.original_name for t in ann.list_takes(test.id)] == ["office.wav", "site.wav"]
+    with open_store(pg_url, cache_dir=tmp_path / "another") as server:   # the pushed audio, from the database
+        site = server.list_takes(test.id)[1]
+        assert hashlib.sha256(server.take_path(site).read_bytes()).hexdigest() == hashlib.sha256(wav_bytes()).hexdigest()
 
 
 def test_the_team_command_imports_no_store_until_an_action_runs():
