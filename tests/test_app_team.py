@@ -22,7 +22,7 @@ def team_app(pg_url, tmp_path, monkeypatch):  # noqa: F811
     monkeypatch.setenv("FIELDTL_STORE_URL", pg_url)
     monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
     monkeypatch.setenv("FIELDTL_ACCESS_CODE", "k7m2-q9tx-4hvw")      # ignored: accounts replace it
-    with open_store(pg_url, audio_dir=tmp_path / "data" / "audio") as server:
+    with open_store(pg_url) as server:
         for name in ("ann", "olga"):
             server.create_account(name, PASSWORD)
         ann = server.login("ann", PASSWORD)
@@ -75,7 +75,7 @@ def _review_page():
 
 
 def test_the_review_section_signs_off_and_tells_the_changes_in_words(team_app, pg_url, tmp_path, monkeypatch):  # noqa: F811
-    with open_store(pg_url, audio_dir=tmp_path / "data" / "audio") as server:
+    with open_store(pg_url) as server:
         ann, olga = server.login("ann", PASSWORD), server.login("olga", PASSWORD)
         test = ann.list_tests(ann.list_projects()[0].id)[0]
         take = ann.add_take(test.id, data=wav_bytes(), original_name="s1.wav", role="source")

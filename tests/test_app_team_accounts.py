@@ -28,7 +28,7 @@ def team(pg_url, tmp_path, monkeypatch):  # noqa: F811
     monkeypatch.setenv("FIELDTL_STORE_URL", pg_url)
     monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
     monkeypatch.setattr(access, "LIMITER", access.GuessLimiter())
-    with open_store(pg_url, audio_dir=tmp_path / "data" / "audio") as server:
+    with open_store(pg_url) as server:
         for name in ("ann", "tom", "rita", "olga"):
             server.create_account(name, PASSWORD)
         server.create_account("ada", PASSWORD, admin=True)

@@ -21,7 +21,7 @@ from fieldtl.ui import access, teamlink
 APP = str(Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "app.py")
 PASSWORD = "invented-password-1"
 TITLE_B = "Invented room C to room D"
-FORM = ["Team server address", "Team recordings folder", "Account", "Password"]
+FORM = ["Team server address", "Account", "Password"]        # the server's recordings are in its database
 
 
 @pytest.fixture
@@ -34,8 +34,8 @@ def site(pg_url, tmp_path, monkeypatch):  # noqa: F811
     monkeypatch.delenv("FIELDTL_STORE_URL", raising=False)
     monkeypatch.delenv("FIELDTL_ACCESS_CODE", raising=False)
     monkeypatch.setattr(access, "LIMITER", access.GuessLimiter())
-    # The team server's recordings folder, as a shared folder this device reaches.
-    with open_store(pg_url, audio_dir=tmp_path / "team-audio") as server:
+    # The office's handle on the team server, with its own cache (not this device's data folder).
+    with open_store(pg_url, cache_dir=tmp_path / "office-cache") as server:
         for name in ("ann", "tom", "rita", "olga"):
             server.create_account(name, PASSWORD)
         ann = server.login("ann", PASSWORD)
@@ -49,7 +49,7 @@ def site(pg_url, tmp_path, monkeypatch):  # noqa: F811
         st.cache_resource.clear()
         st.cache_data.clear()
         yield {"url": pg_url, "ann": ann, "project": project, "a": a, "b": b, "laptop": data / "fieldtl.sqlite3",
-               "recordings": str(tmp_path / "team-audio"), "own_audio": str(data / "audio")}
+               "data": data}
         st.cache_resource.clear()
         st.cache_data.clear()
         teamlink.close_all()
@@ -70,11 +70,11 @@ def _team_page():
     return at
 
 
-def _signed_in(site, name, password=PASSWORD, *, url=None, recordings=None):
+def _signed_in(site, name, password=PASSWORD, *, url=None):
     at = _team_page()
     labels = [t.label for t in at.text_input]
     assert labels == FORM
-    typed = (url or site["url"], recordings or site["recordings"], name, password)
+    typed = (url or site["url"], name, password)
     for field, value in zip(at.text_input, typed, strict=True):
         field.input(value)
     _button(at, "Sign in").click().run()
@@ -246,24 +246,34 @@ def test_a_wrong_password_signs_nothing_in(site):
     assert teamlink.LINK_KEY not in at.session_state
 
 
-def test_a_wrong_recordings_folder_checks_nothing_out_and_names_no_stored_file(site, tmp_path):
-    (tmp_path / "elsewhere").mkdir()
-    at = _signed_in(site, "tom", recordings=str(tmp_path / "elsewhere"))
+def test_audio_missing_on_the_server_checks_nothing_out_and_names_no_stored_file(site):
+    gone = next(t for t in site["ann"].list_takes(site["a"].id) if t.original_name == "s300.wav")
+    with site["ann"]._database.write() as db:                           # behind the store's back
+        db.execute("DELETE FROM audio_blobs WHERE file_name = ?", (gone.file_name,))
+    at = _signed_in(site, "tom")
     _button(at, "Check out to this device").click().run()
     assert not at.exception and not at.success
     message = _plain(at.error[0].value)
-    assert message.startswith("Nothing was checked out: a recording: cannot copy the audio")
-    assert message.endswith("Is the team recordings folder the right one?")
+    assert message == "Nothing was checked out: the audio of 's300.wav' is missing from the team server."
     assert not any(t.sha256 in message for t in site["ann"].list_takes(site["a"].id))
     with Store.open(site["laptop"]) as laptop:
         assert laptop.list_projects() == ()
 
 
-def test_this_devices_own_recordings_folder_is_refused(site):
-    at = _signed_in(site, "tom", recordings=site["own_audio"])
-    assert [_plain(e.value) for e in at.error] == [("Team recordings folder: that is this device's own recordings "
-                                                    "folder; give the team server's shared folder")]
-    assert teamlink.LINK_KEY not in at.session_state
+def test_the_apps_clean_up_at_start_leaves_the_team_servers_audio_alone(site):
+    _checked_out(site)
+    cached = sorted((site["data"] / "team-cache").glob("*/*.wav"))
+    assert len(cached) == 2 and all(site["data"] / "audio" not in p.parents for p in cached)
+    st.cache_resource.clear()                                          # a restart: the store is opened and cleaned
+    with Store.open(site["laptop"]) as laptop:
+        laptop.delete_project(laptop.list_projects()[0].id)             # this device no longer names that audio
+    _team_page()
+    assert sorted((site["data"] / "team-cache").glob("*/*.wav")) == cached
+    with Store.open(site["laptop"]) as laptop:
+        assert list(laptop.audio_dir.glob("*.wav")) == []               # its own unused copies did go
+    with open_store(site["url"], cache_dir=site["data"].parent / "another") as server:
+        takes = server.list_takes(site["a"].id)
+        assert [hashlib.sha256(server.take_path(t).read_bytes()).hexdigest() for t in takes] == [t.sha256 for t in takes]
 
 
 def test_an_address_that_is_not_a_team_server_is_one_line(site):

@@ -4,8 +4,9 @@ Team server page (views/team.py) shows for a check-out and a push.
 Only with the embedded store (the app on a tester's own device). The signed-in account's handle
 is kept for this session only, in our own Session State key; the password is never kept. Each
 server address gets one connection pool per app process, opened at the first sign-in and
-closed when the process ends (:func:`close_all`). Wrong passwords count against the session
-and the client's address as wrong access codes do (ui/access.py).
+closed when the process ends (:func:`close_all`); the recordings come from the server's database
+(cached in this device's data folder, apart from its own recordings). Wrong passwords count
+against the session and the client's address as wrong access codes do (ui/access.py).
 """
 
 from __future__ import annotations
@@ -14,22 +15,19 @@ import atexit
 import re
 import threading
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any
 
 import streamlit as st
 
-from fieldtl.errors import InputError
 from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.location import check_store_url
 from fieldtl.ui import access, gate
-from fieldtl.validate import echo
 
 _STORED_NAME = re.compile(r"\b[0-9a-f]{64}(\.[A-Za-z0-9]+)?\b")   # the store's name of an audio file
 LINK_KEY = "fieldtl.team_link"         # Session State: this session's Link, or absent
 MAX_ADDRESS_CHARS = 300
 
-_SERVERS: dict[tuple[str, Path], Any] = {}   # (address, recordings folder) → the server's own handle (its pool)
+_SERVERS: dict[str, Any] = {}   # address → the server's own handle (its pool; its audio cached in the data folder)
 _LOCK = threading.Lock()
 
 
@@ -43,26 +41,18 @@ def current() -> Link | None:
     return st.session_state.get(LINK_KEY)
 
 
-def sign_in(address: str, recordings: str, name: str, password: str, *, own_audio: Path) -> str | None:
+def sign_in(address: str, name: str, password: str) -> str | None:
     """Sign this session in; returns None, or a sentence saying why not (nothing is kept then).
 
-    ``recordings`` is the folder where the team server keeps its audio, as this device reaches it
-    (a shared folder); it must exist and must not be this device's own audio folder ``own_audio``
-    (whose unused files this device's store removes). A wrong address, folder or an unreachable
-    server raises a FieldTLError (one line, no password)."""
+    The server keeps its recordings in its database: the address and the account are all it
+    takes. A wrong address or an unreachable server raises a FieldTLError (one line, no password)."""
     keys = gate.client_keys()
     wait_s = access.LIMITER.wait_s(keys)
     if wait_s > 0:
         return f"Too many wrong passwords from here: the next try is looked at in {access.describe_wait(wait_s)}."
     address = address.strip()
     check_store_url(address, "Team server address")
-    folder = Path(recordings.strip()).expanduser()
-    if not recordings.strip() or not folder.is_dir():
-        raise InputError(f"Team recordings folder: no folder {echo(recordings.strip())} on this device")
-    if folder.resolve() == own_audio.resolve():
-        raise InputError("Team recordings folder: that is this device's own recordings folder; "
-                         "give the team server's shared folder")
-    server = _server(address, folder.resolve())
+    server = _server(address)
     try:
         account = server.login(name.strip(), password)
     except PermissionDenied:
@@ -78,14 +68,14 @@ def sign_out() -> None:
     st.session_state.pop(LINK_KEY, None)
 
 
-def _server(address: str, recordings: Path) -> Any:
+def _server(address: str) -> Any:
     # the driver is imported only when a server is used
     from fieldtl.store.postgres import ServerStore
 
     with _LOCK:
-        found = _SERVERS.get((address, recordings))
+        found = _SERVERS.get(address)
         if found is None:
-            found = _SERVERS[(address, recordings)] = ServerStore.open(address, audio_dir=recordings)
+            found = _SERVERS[address] = ServerStore.open(address)
         return found
 
 
@@ -105,9 +95,7 @@ def plain(exc: Exception) -> str:
 
 def checkout_refusal(exc: Exception) -> str:
     """Why a check-out failed, in plain words (nothing was copied: the core adds the project last)."""
-    words = plain(exc)
-    hint = " Is the team recordings folder the right one?" if words != str(exc) else ""
-    return f"Nothing was checked out: {words}.{hint}"
+    return f"Nothing was checked out: {plain(exc)}."
 
 
 # --- words -------------------------------------------------------------------------------------------

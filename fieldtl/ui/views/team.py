@@ -39,19 +39,15 @@ with common.fenced():
         with st.form("fieldtl-team-sign-in", clear_on_submit=True):
             address = st.text_input("Team server address", max_chars=teamlink.MAX_ADDRESS_CHARS,
                                     placeholder="postgresql://fieldtl@server.example/fieldtl")
-            recordings = st.text_input("Team recordings folder", max_chars=teamlink.MAX_ADDRESS_CHARS,
-                                       placeholder="/mnt/team/fieldtl-audio",
-                                       help="The shared folder where the team server keeps its recordings, "
-                                            "as this device reaches it.")
             name = st.text_input("Account", max_chars=login.MAX_NAME_CHARS)
             password = st.text_input("Password", type="password", max_chars=login.MAX_NAME_CHARS)
             submitted = st.form_submit_button("Sign in", width="stretch")
         if submitted:
-            if not (address.strip() and recordings.strip() and name.strip() and password):
-                st.info("Type the server address, its recordings folder, your account name and your password first.")
+            if not (address.strip() and name.strip() and password):
+                st.info("Type the server address, your account name and your password first.")
             else:
                 try:
-                    refused = teamlink.sign_in(address, recordings, name, password, own_audio=local.audio_dir)
+                    refused = teamlink.sign_in(address, name, password)
                 except FieldTLError as exc:
                     st.error(common.md(exc))
                 else:
