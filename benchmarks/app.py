@@ -2,7 +2,10 @@
 
 Starts ``fieldtl app`` on a fresh data folder (the invented demo is imported and measured in the
 background), walks the demo, then restarts the server on the same folder and walks again, as a
-tester reopening the app on site would. Each figure is the wall time from the action (page opened,
+tester reopening the app on site would. Those two walks act the moment a page is shown. A third
+walk, after another restart ("paced"), waits PAUSE_S before each action after the first page, as
+a person reading the page or choosing a file does; the app uses such pauses to import what later
+pages need (fieldtl/ui/cached.py). Each figure is the wall time from the action (page opened,
 button clicked, file chosen) until what it should show is visible:
 
 - first page: the Projects page after the server answers its health check;
@@ -38,6 +41,7 @@ from live_server import free_port, start_server, stop_server, wait_until_healthy
 
 PHONE = {"width": 390, "height": 844}
 TIMEOUT_MS = 180_000
+PAUSE_S = 3.0          # the paced walk: a person's time on a page before the next action
 
 
 def timed(action: Callable[[], object], until: Callable[[], object]) -> float:
@@ -67,7 +71,12 @@ def new_recording() -> bytes:
     return buffer.getvalue()
 
 
-def walk(page, url: str, figures: dict[str, float], prefix: str, *, upload: bool) -> None:
+def walk(page, url: str, figures: dict[str, float], prefix: str, *, upload: bool, pause_s: float = 0.0) -> None:
+    def measure(name: str, action: Callable[[], object], until: Callable[[], object]) -> None:
+        if figures.keys() & {f"{prefix} first page"}:
+            time.sleep(pause_s)                     # paced walk: after the first page, a pause before acting
+        figures[f"{prefix} {name}"] = timed(action, until)
+
     heading = lambda name: page.get_by_role("heading", name=name, exact=True).wait_for(timeout=TIMEOUT_MS)  # noqa: E731
     cards = page.locator("[class*='st-key-take-card-']")      # one bordered card per take
 
@@ -87,32 +96,31 @@ def walk(page, url: str, figures: dict[str, float], prefix: str, *, upload: bool
         cards.nth(total - 1).wait_for(timeout=TIMEOUT_MS)        # the last (oldest) card drawn and visible
 
     verdict = page.get_by_text(re.compile(r"(PASS|FAIL|UNDECIDED) against"))
-    figures[f"{prefix} first page"] = timed(lambda: page.goto(url), lambda: heading("Projects"))
-    figures[f"{prefix} opening the demo test"] = timed(
-        lambda: page.get_by_role("button", name=re.compile("INVENTED DEMO")).click(timeout=TIMEOUT_MS), takes_listed)
-    figures[f"{prefix} results"] = timed(lambda: page.get_by_text("See the results").first.click(),
-                                         lambda: verdict.first.wait_for(timeout=TIMEOUT_MS))
+    measure("first page", lambda: page.goto(url), lambda: heading("Projects"))
+    measure("opening the demo test",
+            lambda: page.get_by_role("button", name=re.compile("INVENTED DEMO")).click(timeout=TIMEOUT_MS), takes_listed)
+    measure("results", lambda: page.get_by_text("See the results").first.click(),
+            lambda: verdict.first.wait_for(timeout=TIMEOUT_MS))
     query = page.url.partition("?")[2]
-    figures[f"{prefix} takes again"] = timed(lambda: page.goto(f"{url}/takes?{query}"), takes_listed)
-    figures[f"{prefix} results again"] = timed(lambda: page.get_by_text("See the results").first.click(),
-                                               lambda: verdict.first.wait_for(timeout=TIMEOUT_MS))
-    figures[f"{prefix} report page"] = timed(lambda: page.goto(f"{url}/report?{query}"), lambda: heading("Report and export"))
-    figures[f"{prefix} PDF"] = timed(
-        lambda: page.get_by_role("button", name="Make the PDF report").click(),
-        lambda: page.get_by_text("Download the PDF report").wait_for(timeout=TIMEOUT_MS))
+    measure("takes again", lambda: page.goto(f"{url}/takes?{query}"), takes_listed)
+    measure("results again", lambda: page.get_by_text("See the results").first.click(),
+            lambda: verdict.first.wait_for(timeout=TIMEOUT_MS))
+    measure("report page", lambda: page.goto(f"{url}/report?{query}"), lambda: heading("Report and export"))
+    measure("PDF", lambda: page.get_by_role("button", name="Make the PDF report").click(),
+            lambda: page.get_by_text("Download the PDF report").wait_for(timeout=TIMEOUT_MS))
     if upload:
         page.goto(f"{url}/takes?{query}")
         count = takes_listed()
         data = new_recording()
+        name = f"bench-take-{len(figures)}.wav"      # a name no earlier walk used
 
         def more_takes() -> None:
-            page.get_by_text(re.compile(r"Stored .*bench-take\.wav")).first.wait_for(timeout=TIMEOUT_MS)
+            page.get_by_text(f"Stored {name}", exact=False).first.wait_for(timeout=TIMEOUT_MS)
             wait_for_cards(count + 1)
-            cards.filter(has_text="bench-take.wav").filter(has_text="(100-3150 Hz)").wait_for(timeout=TIMEOUT_MS)
+            cards.filter(has_text=name).filter(has_text="(100-3150 Hz)").wait_for(timeout=TIMEOUT_MS)
 
-        figures[f"{prefix} new take listed"] = timed(
-            lambda: page.locator("input[type=file]").first.set_input_files(
-                {"name": "bench-take.wav", "mimeType": "audio/wav", "buffer": data}), more_takes)
+        measure("new take listed", lambda: page.locator("input[type=file]").first.set_input_files(
+            {"name": name, "mimeType": "audio/wav", "buffer": data}), more_takes)
 
 
 def main() -> None:
@@ -126,11 +134,12 @@ def main() -> None:
         browser = playwright.chromium.launch(executable_path=chromium, args=[
             "--disable-background-networking", "--disable-component-update", "--no-first-run", "--disable-sync"])
         try:
-            for prefix, upload in (("first start:", False), ("after a restart:", True)):
+            for prefix, upload, pause_s in (("first start:", False, 0.0), ("after a restart:", True, 0.0),
+                                            ("after a restart, paced:", True, PAUSE_S)):
                 server, url = serve(Path(folder) / "store")
                 try:
                     page = browser.new_page(viewport=PHONE)
-                    walk(page, url, figures, prefix, upload=upload)
+                    walk(page, url, figures, prefix, upload=upload, pause_s=pause_s)
                     page.close()
                 finally:
                     stop_server(server)
@@ -139,7 +148,7 @@ def main() -> None:
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"app response times in chromium at 390 x 844, load average {load:.2f}")
     for name, seconds in figures.items():
-        print(f"{name:<40} {seconds:6.2f} s")
+        print(f"{name:<48} {seconds:6.2f} s")
 
 
 if __name__ == "__main__":

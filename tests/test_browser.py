@@ -59,6 +59,12 @@ def _contrast(page, selector) -> float:
     }""", selector)
 
 
+def _settled(page):
+    """Wait until the app's script run is over: no status widget and no element left from an earlier run."""
+    page.wait_for_function("""() => !document.querySelector('[data-testid="stStatusWidget"]')
+        && !document.querySelector('[data-stale="true"]')""", timeout=120_000)
+
+
 def _open_demo_test(page, url):
     page.goto(url)
     page.get_by_role("button", name=re.compile("INVENTED DEMO")).click(timeout=60_000)
@@ -175,11 +181,13 @@ def test_phone_takes_listed_at_once_duplicates_refused_removal_and_results_reloa
             assert _contrast(page, "[data-testid='stCaptionContainer'] p") >= 4.5       # WCAG 2.x AA text
             # removing the calibration check at the end turns the checklist back; undo restores it
             page.get_by_text("Checklist: 8 of 8 done").wait_for(timeout=60_000)
+            _settled(page)                                  # the list redrawn without hum.wav
             if not chosen.is_visible():
                 change.click()
             chosen.fill("cal_after")                        # chosen by its file name and positions
             page.get_by_role("option", name="cal_after.flac (calibrator tone at the end)").click()
-            page.get_by_text("Use this take").wait_for(timeout=60_000)
+            page.wait_for_function("""() => [...document.querySelectorAll('[data-testid="stWidgetLabel"]')]
+                .filter(label => label.innerText.trim() === 'Use this take').length === 1""", timeout=60_000)
             assert chosen.input_value() == "cal_after.flac (calibrator tone at the end)"
             page.get_by_role("button", name="Remove this take").click()
             page.get_by_text("Checklist: 7 of 8 done").wait_for(timeout=120_000)

@@ -10,22 +10,11 @@ from fieldtl.store import take_roles
 from fieldtl.ui import cached, common, gate, state, takelist, takeview
 from fieldtl.ui.recorder import recorder
 
-gate.require_access()
-with common.fenced():
-    store = cached.store()
-    project, test = common.require_test()
-    setup = test.setup
-    st.title("Takes")
-    common.heading(project, test)
-    pending = takelist.removed()
-    takes = [t for t in store.list_takes(test.id) if t.id not in pending]
-    included = [t for t in takes if not t.excluded]
-    titles = takelist.titles(takes, setup.test_type)
-    names = take_names(takes, test_type=setup.test_type)
-    pasted = test.band_levels_csv is not None
 
-    # --- checklist ------------------------------------------------------------------------------------
-    if pasted:
+def _checklist(test, included) -> None:
+    """The progress bar and the list of what the test still needs (or the pasted columns present)."""
+    setup = test.setup
+    if test.band_levels_csv is not None:
         pasted_items = takelist.pasted_checklist(test)
         needed = [i for i in pasted_items if i.required]
         done = sum(1 for i in needed if i.have)
@@ -47,11 +36,29 @@ with common.fenced():
             for item in items:
                 word = "done" if item.done else "to do"
                 st.write(f"{'✅' if item.done else '⬜'} **{word}**: {item.label}: {item.have} of {item.need}")
+
+
+gate.require_access()
+with common.fenced():
+    store = cached.store()
+    project, test = common.require_test()
+    setup = test.setup
+    st.title("Takes")
+    common.heading(project, test)
+    pending = takelist.removed()
+    takes = [t for t in store.list_takes(test.id) if t.id not in pending]
+    titles = takelist.titles(takes, setup.test_type)
+    names = take_names(takes, test_type=setup.test_type)
+    pasted = test.band_levels_csv is not None
+
+    # The checklist and the messages are drawn into these places once the takes that arrived in this
+    # run are stored: one script run shows a new take everywhere (no second run after storing).
+    checklist_box = st.container()
     st.page_link("views/results.py", label="See the results", icon="📊")
 
     # --- adding a take -------------------------------------------------------------------------------------
     st.subheader("Pasted band levels" if pasted else "Add a take")
-    takelist.show_messages(test.id)
+    messages_box = st.container()
     role, speaker, method, channel = "source", 1, None, 0
     sweep: dict[str, float] = {}
     if not pasted:                           # what the next recording is (a pasted test needs none)
@@ -107,7 +114,6 @@ with common.fenced():
                                                "device_label": recorded.device_label})
                 for warning in recorded.warnings:
                     takelist.say("warning", common.md(warning))
-                st.rerun()
     if "upload" in tabs:
         with tabs["upload"]:
             uploads = st.file_uploader("WAV or FLAC files from a recorder or sound level meter",
@@ -118,7 +124,6 @@ with common.fenced():
                 for upload in fresh:
                     state.remembered(state.STORED_UPLOADS).add(upload.file_id)
                     _store_take(upload.getvalue(), upload.name)
-                st.rerun()
     with tabs["paste"]:
         with st.expander("What to paste", expanded=pasted is False):
             st.markdown(takelist.paste_help(setup.test_type))
@@ -135,7 +140,11 @@ with common.fenced():
             store.set_band_levels(test.id, None)
             st.rerun()
 
+    with checklist_box:
+        _checklist(test, [t for t in takes if not t.excluded])
+    with messages_box:
+        takelist.show_messages(test.id)
     if not pasted:
-        takeview.draw(store, test, takes, titles, names)
+        takeview.draw(store, test, takes, titles, take_names(takes, test_type=setup.test_type))
     st.page_link("views/results.py", label="See the results", icon="📊")
     common.cautions()
