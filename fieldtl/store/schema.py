@@ -126,7 +126,7 @@ class TakeRecord:
     speaker: int                    # loudspeaker or tapping-machine position, 1-based
     method: str | None              # decays only: impulse | interrupted | sweep
     channel: int                    # 0-based channel analysed
-    file_name: str                  # content-addressed: <sha256><.wav|.flac> in the audio folder
+    file_name: str                  # content-addressed: <sha256><.wav|.flac> (a file, or a team server blob)
     original_name: str
     sha256: str
     sample_rate_hz: int
