@@ -184,12 +184,15 @@ def measure_take(spec: TakeSpec, *, level_offset_db: float,
     stats = SampleStats(sample_rate_hz=recording.sample_rate_hz, source_name=name)
     if spec.role == "decay":
         samples = read_samples(recording, stats=stats)
-        analysis = analyse_decay(samples, sample_rate_hz=recording.sample_rate_hz, spec=spec, source_name=name)
+        analysis, octave = _thirds_and_octave_63(samples, sample_rate_hz=recording.sample_rate_hz, spec=spec,
+                                                 source_name=name)
         facts = stats.facts()
+        # The 63 Hz octave's T20 is what small rooms use at 50-80 Hz (ISO 16283-1/-2 clause 10.4); its
+        # findings are dropped here: the assessment reports a missing octave T only where it is needed.
+        octave_t20_s = octave.spectrum("T20").values[0]
         take = TakeSummary(label=name, role=spec.role, speaker=spec.speaker, duration_s=facts.duration_s,
                            reverberation_time_s=analysis.spectrum("T20"),
-                           octave_63_reverberation_time_s=octave_63_t20_s(
-                               samples, sample_rate_hz=recording.sample_rate_hz, spec=spec, source_name=name))
+                           octave_63_reverberation_time_s=None if octave_t20_s is None else float(octave_t20_s))
         return take, facts.findings + analysis.all_findings()
     # Level takes are stationary (ISO 16283: steady source, receiving, background and impact levels):
     # band Leq by the spectral route, the A-weighted 1 s levels for the stationarity checks.
@@ -221,14 +224,24 @@ def analyse_decay(samples: np.ndarray, *, sample_rate_hz: float, spec: TakeSpec,
                                                              source_name=source_name), **options)
 
 
-def octave_63_t20_s(samples: np.ndarray, *, sample_rate_hz: float, spec: TakeSpec, source_name: str) -> float | None:
-    """T20 of the 63 Hz octave band, which small rooms use at 50-80 Hz (ISO 16283-1/-2 clause 10.4).
+def _thirds_and_octave_63(samples: np.ndarray, *, sample_rate_hz: float, spec: TakeSpec,
+                          source_name: str) -> tuple[DecayAnalysis, DecayAnalysis]:
+    """The take's decay in one-third octaves 50-5000 Hz and in the 63 Hz octave; an impulse response
+    (recorded, or deconvolved from a sweep) is prepared once for both."""
+    from fieldtl.analysis.decay import decay_band_sets
+    from fieldtl.audio.signals import impulse_response_from_sweep
 
-    Its findings are dropped here: the assessment reports a missing octave T only where it is needed.
-    """
-    value = analyse_decay(samples, sample_rate_hz=sample_rate_hz, spec=spec, source_name=source_name,
-                          nominal_hz=(63.0,), fraction=1).spectrum("T20").values[0]
-    return None if value is None else float(value)
+    if spec.method == "interrupted":
+        return (analyse_decay(samples, sample_rate_hz=sample_rate_hz, spec=spec, source_name=source_name),
+                analyse_decay(samples, sample_rate_hz=sample_rate_hz, spec=spec, source_name=source_name,
+                              nominal_hz=(63.0,), fraction=1))
+    response = samples if spec.method == "impulse" else impulse_response_from_sweep(
+        samples, sweep_from_spec(spec, sample_rate_hz=sample_rate_hz, source_name=source_name),
+        sample_rate_hz=sample_rate_hz, source_name=source_name)
+    thirds, octave = decay_band_sets(response, sample_rate_hz=sample_rate_hz, source_name=source_name,
+                                     band_sets=((THIRD_OCTAVES_50_5000_HZ, 3), ((63.0,), 1)),
+                                     method="impulse_response" if spec.method == "impulse" else "sweep")
+    return thirds, octave
 
 
 def sweep_from_spec(spec: TakeSpec, *, sample_rate_hz: float, source_name: str) -> SweepSpec:

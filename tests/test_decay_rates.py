@@ -11,10 +11,9 @@ import pytest
 from scipy import signal
 from test_decay import FS, modal_impulse_response
 
-from fieldtl.analysis.decay import (DECAY_EDGE_FRACTION, DECAY_MIN_RATE_HZ, decay_stage,
-                                    reverberation_from_impulse_response)
+from fieldtl.analysis.decay import decay_band_sets, reverberation_from_impulse_response
 from fieldtl.analysis.edc import fit_decay_line, schroeder_decay_db
-from fieldtl.analysis.filterbank import band_sos
+from fieldtl.analysis.filterbank import DECAY_EDGE_FRACTION, DECAY_MIN_RATE_HZ, band_sos, decay_stage
 from fieldtl.bands import band_edges_hz
 
 
@@ -58,3 +57,17 @@ def test_what_lies_above_the_lowered_rate_does_not_fold_into_a_band():
                                                noise_handling="none").bands[0]
     assert decay_stage(125.0, fraction=3, sample_rate_hz=FS) == 3
     assert band.t20_s == pytest.approx(0.7, rel=0.01)
+
+
+def test_band_sets_prepared_once_give_what_each_analysis_gives_alone():
+    # the same response, thirds and an octave together or one set at a time: identical results
+    response = modal_impulse_response(0.6, odd_bands=False, length_s=2.0, noise_below_db=50.0)
+    thirds, octave = decay_band_sets(response, sample_rate_hz=FS, band_sets=(([100.0, 1000.0, 4000.0], 3),
+                                                                              ([63.0], 1)))
+    alone = [reverberation_from_impulse_response(response, sample_rate_hz=FS, nominal_hz=bands, fraction=fraction)
+             for bands, fraction in (([100.0, 1000.0, 4000.0], 3), ([63.0], 1))]
+    for together, single in zip((thirds, octave), alone):
+        assert together.nominal_hz == single.nominal_hz
+        for name in ("T20", "T30", "EDT"):
+            assert together.spectrum(name).values == single.spectrum(name).values
+        assert together.all_findings() == single.all_findings()

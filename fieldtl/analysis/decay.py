@@ -21,7 +21,7 @@ from scipy import signal
 
 from fieldtl.analysis.edc import (EVALUATION_RANGES_DB, DecayCurve, DecayLine, NoiseHandling, Parameter,
                                   fit_decay_line, impulse_start_index, integrated_decay_curve, without_trailing_padding)
-from fieldtl.analysis.filterbank import anti_alias_sos, band_sos
+from fieldtl.analysis.filterbank import band_sos, decay_stage, halved
 from fieldtl.analysis.lundeby import estimate_noise_floor, smoothing_window_s
 from fieldtl.audio.signals import SweepSpec, checked_audio, impulse_response_from_sweep
 from fieldtl.bands import (OCTAVES_125_2000_HZ, THIRD_OCTAVES_100_3150_HZ, BandSpectrum, Fraction,
@@ -38,13 +38,6 @@ CURVATURE_LIMIT_PERCENT = 10.0     # C above 10 % is suspicious (ISO 3382-2 Anne
 BT_MIN_TIME_REVERSED = 4.0         # B·T > 4 with time-reversed filtering (ISO 3382-2, from memory)
 BT_MIN_FORWARD = 16.0              # B·T > 16 with forward filtering (ISO 3382-2, from memory)
 MIN_IMPULSE_RESPONSE_S = 0.1
-# Bands of an impulse response are filtered at a lowered rate (decimated by 2 through the bank's
-# anti-alias low-pass, stop band 90 dB down): a band's upper edge stays at most 0.12 of the rate it
-# runs at, as the 5 kHz band's does at 48 kHz (0.117), so every band filter keeps the shape it has
-# at full rate; and the rate stays at least 5 kHz, so the decay curve keeps its 1 ms steps. At
-# 48 kHz, 50-630 Hz then run at 6 kHz: about three times less work for a decay (benchmarks/assess.py).
-DECAY_EDGE_FRACTION = 0.12
-DECAY_MIN_RATE_HZ = 5000.0
 CLAUSE_RANGE = "ISO 3382-2 (from memory): bottom of the evaluation range at least 10 dB above the noise"
 CLAUSE_ANNEX_B = "ISO 3382-2 Annex B (from memory)"
 
@@ -153,9 +146,20 @@ def reverberation_from_sweep(
 def _from_impulse_response(impulse_response: np.ndarray, *, sample_rate_hz: float,
                            nominal_hz: Sequence[float] | None, fraction: Fraction,
                            noise_handling: NoiseHandling, source_name: str, method: Method) -> DecayAnalysis:
+    return decay_band_sets(impulse_response, sample_rate_hz=sample_rate_hz, band_sets=((nominal_hz, fraction),),
+                           noise_handling=noise_handling, source_name=source_name, method=method)[0]
+
+
+def decay_band_sets(impulse_response: np.ndarray, *, sample_rate_hz: float,
+                    band_sets: Sequence[tuple[Sequence[float] | None, Fraction]], noise_handling: NoiseHandling = "subtract",
+                    source_name: str = "impulse response", method: Method = "impulse_response") -> tuple[DecayAnalysis, ...]:
+    """One analysis per set of bands (say one-third octaves and an octave) of one impulse response, as
+    :func:`reverberation_from_impulse_response` gives each, with the start found, the response reversed
+    and decimated once for all of them."""
     response = checked_audio(impulse_response, sample_rate_hz=sample_rate_hz, source_name=source_name,
                              min_duration_s=MIN_IMPULSE_RESPONSE_S)
-    bands_hz = analysis_bands(nominal_hz, fraction=fraction, sample_rate_hz=sample_rate_hz, source_name=source_name)
+    sets = [(analysis_bands(nominal_hz, fraction=fraction, sample_rate_hz=sample_rate_hz, source_name=source_name),
+             fraction) for nominal_hz, fraction in band_sets]
     if noise_handling not in ("subtract", "truncate", "none"):
         raise InputError(f"{source_name}: noise handling must be 'subtract', 'truncate' or 'none', "
                          f"got {noise_handling!r}")
@@ -168,33 +172,24 @@ def _from_impulse_response(impulse_response: np.ndarray, *, sample_rate_hz: floa
                           f"{source_name}: the response never rises 20 dB above its own tail, so its start "
                           "cannot be found", "check the recording chain and the level, then measure again",
                           clause="ISO 3382-1 (from memory): start 20 dB below the peak")
-        bands = tuple(band_without_decay(f, fraction, None, ()) for f in bands_hz)
-        return DecayAnalysis(source_name, method, "single", 1, bands, (finding,))
+        return tuple(DecayAnalysis(source_name, method, "single", 1,
+                                   tuple(band_without_decay(f, fraction, None, ()) for f in bands_hz), (finding,))
+                     for bands_hz, fraction in sets)
     # Time-reversed filtering: filter the reversed response, reverse back (ISO 3382-2, from memory).
     # Each band runs at the lowest rate decay_stage allows, low-passed and decimated in reversed time.
     reversed_at_stage = [np.ascontiguousarray(response[start:][::-1])]
-    bands = []
-    for f in bands_hz:
-        stage = decay_stage(f, fraction=fraction, sample_rate_hz=sample_rate_hz)
-        while len(reversed_at_stage) <= stage:
-            low_passed = signal.sosfilt(anti_alias_sos().copy(), reversed_at_stage[-1])
-            reversed_at_stage.append(low_passed[(low_passed.size - 1) % 2 :: 2])   # keeps the decay's first sample
-        bands.append(_impulse_band(reversed_at_stage[stage], f, fraction=fraction,
-                                   sample_rate_hz=sample_rate_hz / 2**stage, decimation=2**stage,
-                                   noise_handling=noise_handling, source_name=source_name))
-    return DecayAnalysis(source_name, method, "single", 1, tuple(bands), ())
-
-
-def decay_stage(nominal_hz: float, *, fraction: Fraction, sample_rate_hz: float) -> int:
-    """How many times a band's impulse response is decimated by 2 before its band filter: as often as
-    the band's upper edge stays at most DECAY_EDGE_FRACTION of the lowered rate and that rate at least
-    DECAY_MIN_RATE_HZ (0 when the full rate is needed)."""
-    high_hz = band_edges_hz(nominal_hz, fraction=fraction)[1]
-    stage = 0
-    while (high_hz <= DECAY_EDGE_FRACTION * sample_rate_hz / 2 ** (stage + 1)
-           and sample_rate_hz / 2 ** (stage + 1) >= DECAY_MIN_RATE_HZ):
-        stage += 1
-    return stage
+    analyses = []
+    for bands_hz, fraction in sets:
+        bands = []
+        for f in bands_hz:
+            stage = decay_stage(f, fraction=fraction, sample_rate_hz=sample_rate_hz)
+            while len(reversed_at_stage) <= stage:
+                reversed_at_stage.append(halved(reversed_at_stage[-1]))
+            bands.append(_impulse_band(reversed_at_stage[stage], f, fraction=fraction,
+                                       sample_rate_hz=sample_rate_hz / 2**stage, decimation=2**stage,
+                                       noise_handling=noise_handling, source_name=source_name))
+        analyses.append(DecayAnalysis(source_name, method, "single", 1, tuple(bands), ()))
+    return tuple(analyses)
 
 
 def _impulse_band(reversed_response: np.ndarray, nominal_hz: float, *, fraction: Fraction, sample_rate_hz: float,

@@ -60,6 +60,13 @@ ANTI_ALIAS_STOP_DB = 90.0       # well below the 60-70 dB floor of IEC 61260-1:2
 # the whole chain (anti-alias low-passes and guard included) has then released all but 1e-5 of its
 # energy (worst band, 20 Hz to 10 kHz at 44.1, 48 and 96 kHz, computed).
 SETTLE_BANDWIDTHS = 5.0
+# Bands of an impulse response (fieldtl.analysis.decay) are filtered at a lowered rate (decimated by 2
+# through the anti-alias low-pass, stop band 90 dB down): a band's upper edge stays at most 0.12 of the rate it
+# runs at, as the 5 kHz band's does at 48 kHz (0.117), so every band filter keeps the shape it has
+# at full rate; and the rate stays at least 5 kHz, so the decay curve keeps its 1 ms steps. At
+# 48 kHz, 50-630 Hz then run at 6 kHz: about three times less work for a decay (benchmarks/assess.py).
+DECAY_EDGE_FRACTION = 0.12
+DECAY_MIN_RATE_HZ = 5000.0
 
 
 def band_sos(nominal_hz: float, *, sample_rate_hz: float, fraction: Fraction = 3,
@@ -94,6 +101,25 @@ def anti_alias_sos() -> np.ndarray:
     order, _ = signal.ellipord(_ALIAS_PASS_FRACTION, _ALIAS_STOP_FRACTION, ANTI_ALIAS_RIPPLE_DB, ANTI_ALIAS_STOP_DB)
     return read_only(signal.ellip(order, ANTI_ALIAS_RIPPLE_DB, ANTI_ALIAS_STOP_DB, _ALIAS_PASS_FRACTION,
                                   output="sos"))
+
+
+def decay_stage(nominal_hz: float, *, fraction: Fraction, sample_rate_hz: float) -> int:
+    """How many times a band's impulse response is decimated by 2 before its band filter: as often as
+    the band's upper edge stays at most DECAY_EDGE_FRACTION of the lowered rate and that rate at least
+    DECAY_MIN_RATE_HZ (0 when the full rate is needed)."""
+    high_hz = band_edges_hz(nominal_hz, fraction=fraction)[1]
+    stage = 0
+    while (high_hz <= DECAY_EDGE_FRACTION * sample_rate_hz / 2 ** (stage + 1)
+           and sample_rate_hz / 2 ** (stage + 1) >= DECAY_MIN_RATE_HZ):
+        stage += 1
+    return stage
+
+
+def halved(samples: np.ndarray) -> np.ndarray:
+    """``samples`` through the anti-alias low-pass, every second one kept, ending with the last one
+    (for a reversed decay: its first sample stays at time 0)."""
+    low_passed = signal.sosfilt(anti_alias_sos().copy(), samples)
+    return low_passed[(low_passed.size - 1) % 2 :: 2]
 
 
 def read_only(values: np.ndarray) -> np.ndarray:
