@@ -10,7 +10,8 @@ button clicked, file chosen) until what it should show is visible:
 
 - first page: the Projects page after the server answers its health check;
 - demo test: the Takes page with every take's card (each drawn with what it showed, once measured);
-- results: the verdict; later pages: Takes and Results again, and the Report page opened by address;
+- results: the verdict; later pages: Takes and Results again, the Report page opened by address, and
+  the Construction page opened by address until its chart of predicted against measured R' shows;
 - new take: an uploaded recording's card listed with what it showed (its level line);
 - PDF: the download button after "Make the PDF report".
 
@@ -96,6 +97,12 @@ def walk(page, url: str, figures: dict[str, float], prefix: str, *, upload: bool
         cards.nth(total - 1).wait_for(timeout=TIMEOUT_MS)        # the last (oldest) card drawn and visible
 
     verdict = page.get_by_text(re.compile(r"(PASS|FAIL|UNDECIDED) against"))
+
+    def compared() -> None:
+        """The Construction page with its chart of predicted against measured R' (needs the assessment)."""
+        heading("Construction check")
+        page.locator("[data-testid='stVegaLiteChart']").first.wait_for(timeout=TIMEOUT_MS)
+
     measure("first page", lambda: page.goto(url), lambda: heading("Projects"))
     measure("opening the demo test",
             lambda: page.get_by_role("button", name=re.compile("INVENTED DEMO")).click(timeout=TIMEOUT_MS), takes_listed)
@@ -108,6 +115,7 @@ def walk(page, url: str, figures: dict[str, float], prefix: str, *, upload: bool
     measure("report page", lambda: page.goto(f"{url}/report?{query}"), lambda: heading("Report and export"))
     measure("PDF", lambda: page.get_by_role("button", name="Make the PDF report").click(),
             lambda: page.get_by_text("Download the PDF report").wait_for(timeout=TIMEOUT_MS))
+    measure("construction page", lambda: page.goto(f"{url}/construction?{query}"), compared)
     if upload:
         page.goto(f"{url}/takes?{query}")
         count = takes_listed()
