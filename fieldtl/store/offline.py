@@ -26,7 +26,7 @@ The audio goes in the same transaction (fieldtl.store.pg_blobs): what the server
 first, before the transaction takes the write lock (other writers do not wait for the upload),
 and is kept under the lock with the rows. A push killed half-way leaves the server exactly as it
 was, audio included (the transaction rolls back); it can simply be repeated. Check-out copies
-the audio from the server through this device's cache of it (never its own audio folder).
+the audio from the server's database straight into this device's store (SHA-256 checked).
 """
 
 from __future__ import annotations
@@ -41,7 +41,7 @@ from fieldtl.store import pg_blobs, rows
 from fieldtl.store.files import place_file
 from fieldtl.store.offline_plan import (FieldDifference, SettingsConflict, TestWork, plan, settings_of,
                                         take_fields_of)
-from fieldtl.store.offline_record import (CheckoutRecord, copy_checked, list_records, read_record, record_folder,
+from fieldtl.store.offline_record import (CheckoutRecord, list_records, read_record, record_folder,
                                           write_record)
 from fieldtl.store.postgres import READ, WRITE, ServerStore
 from fieldtl.store.schema import check_take_fields, utc_now
@@ -89,7 +89,7 @@ def check_out(server: ServerStore, project_id: int, local: Store) -> int:
     try:
         for take in snapshot.takes:
             if take.file_name not in files:
-                files[take.file_name] = copy_checked(server.take_path(take), local.incoming_path(), take.sha256)
+                files[take.file_name] = server.copy_audio(take, local.incoming_path())
         copy = local.add_project_copy(snapshot, files)
     finally:
         for path in files.values():
@@ -189,7 +189,7 @@ def _apply_here(local: Store, server: ServerStore, work: list[TestWork]) -> None
     try:
         for _, take in restores:
             if take.file_name not in files:
-                files[take.file_name] = copy_checked(server.take_path(take), local.incoming_path(), take.sha256)
+                files[take.file_name] = server.copy_audio(take, local.incoming_path())
         with local._write() as db:
             for w in work:
                 if w.settings == "server" and w.server_test is not None:

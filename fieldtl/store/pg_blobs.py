@@ -4,19 +4,22 @@ cache of them.
 A take's audio is written in the same transaction as the take row naming it (a blob already there
 is not sent again), so a committed take always has its audio, a rolled-back write leaves none,
 and one ``pg_dump`` holds the whole team store. The database checks each blob against its name
-(SHA-256). A client reads audio through files: :func:`fetch` copies a blob in slices into the
-client's cache folder under a temporary name, checks its SHA-256, then renames it to the content
-name, so a file there is always whole and right. The cache is this client's alone
+(SHA-256). A client reads audio through files: :func:`fetch` copies a blob in slices under a
+temporary name, checks its SHA-256, then renames it: to the content name in the client's cache
+folder (so a file there is always whole and right), or, for a check-out, straight into the
+device's own store. The cache is this client's alone
 (``DATA_DIR/team-cache/<digest of the server's host, port and database>``), never the folder of
 the device's own store, whose clean-up removes audio its own takes do not name.
 
-Values go as bound parameters, in binary (``%b``): a take is at most the store's
-``max_take_bytes`` (200 MB by default), held once in memory while it is sent.
+Values go as bound parameters, in binary (``%b``), from the file mapped into memory (not read into
+a copy): a take is at most the store's ``max_take_bytes`` (200 MB by default), held once in the
+driver's buffer while it is sent, and read back in slices of :data:`SLICE_BYTES`.
 """
 
 from __future__ import annotations
 
 import hashlib
+import mmap
 import os
 from collections.abc import Iterable, Mapping
 from pathlib import Path
@@ -49,9 +52,7 @@ def present(db, names: Iterable[str]) -> set[str]:
 def put(db, files: Mapping[str, Path]) -> None:
     """Store each checked file (content name → file) the server lacks, in the caller's write transaction."""
     for name in sorted(set(files) - present(db, files)):
-        data = files[name].read_bytes()
-        db.connection.execute("INSERT INTO audio_blobs (file_name, size_bytes, data) VALUES (%s, %s, %b)",
-                              (name, len(data), data))
+        _send(db, "audio_blobs", name, files[name])
 
 
 def stage(db, files: Mapping[str, tuple[Path, str]]) -> None:
@@ -61,9 +62,7 @@ def stage(db, files: Mapping[str, tuple[Path, str]]) -> None:
     db.connection.execute(f"CREATE TEMPORARY TABLE {STAGED} (file_name TEXT PRIMARY KEY, size_bytes BIGINT "
                           "NOT NULL, data BYTEA NOT NULL) ON COMMIT DROP")
     for name in sorted(set(files) - present(db, files)):
-        data = _checked_read(*files[name])
-        db.connection.execute(f"INSERT INTO {STAGED} (file_name, size_bytes, data) VALUES (%s, %s, %b)",
-                              (name, len(data), data))
+        _send(db, STAGED, name, *files[name])
 
 
 def keep_staged(db, needed: Iterable[str], files: Mapping[str, tuple[Path, str]]) -> None:
@@ -73,9 +72,7 @@ def keep_staged(db, needed: Iterable[str], files: Mapping[str, tuple[Path, str]]
     db.execute(f"INSERT INTO audio_blobs (file_name, size_bytes, data) SELECT file_name, size_bytes, data "
                f"FROM {STAGED} WHERE file_name = ANY(?) ON CONFLICT (file_name) DO NOTHING", (needed,))
     for name in sorted(set(needed) - present(db, needed)):
-        data = _checked_read(*files[name])
-        db.connection.execute("INSERT INTO audio_blobs (file_name, size_bytes, data) VALUES (%s, %s, %b)",
-                              (name, len(data), data))
+        _send(db, "audio_blobs", name, *files[name])
 
 
 def fetch(db, file_name: str, sha256: str, target: Path) -> bool:
@@ -118,11 +115,20 @@ def clear_cache(cache_dir: Path, used: set[str], *, stale_s: float) -> None:
         path.unlink(missing_ok=True)
 
 
-def _checked_read(path: Path, sha256: str) -> bytes:
+def _send(db, table: str, name: str, path: Path, sha256: str | None = None) -> None:
+    """Insert the file as the blob ``name`` into ``table`` (ours: audio_blobs or the staging table),
+    refusing it first if ``sha256`` is given and the file no longer matches it. The file is mapped,
+    not read into memory: the driver's buffer holds the one copy sent."""
     try:
-        data = path.read_bytes()
-    except OSError as exc:
-        raise StoreError(f"{path.name}: cannot read the audio ({exc.strerror or exc}); nothing was sent") from None
-    if hashlib.sha256(data).hexdigest() != sha256:
-        raise StoreError(f"{path.name}: the audio file no longer matches its SHA-256; nothing was sent")
-    return data
+        with open(path, "rb") as handle, mmap.mmap(handle.fileno(), 0, access=mmap.ACCESS_READ) as mapped:
+            data = memoryview(mapped)
+            try:
+                if sha256 is not None and hashlib.sha256(data).hexdigest() != sha256:
+                    raise StoreError(f"{path.name}: the audio file no longer matches its SHA-256; nothing was sent")
+                db.connection.execute(f"INSERT INTO {table} (file_name, size_bytes, data) VALUES (%s, %s, %b)",
+                                      (name, len(data), data))
+            finally:
+                data.release()
+    except (OSError, ValueError) as exc:        # ValueError: an empty file cannot be mapped
+        raise StoreError(f"{path.name}: cannot read the audio ({getattr(exc, 'strerror', None) or exc}); "
+                         "nothing was sent") from None

@@ -38,6 +38,7 @@ from fieldtl.store.connection import default_data_dir
 from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.files import STALE_INCOMING_S, place_file
 from fieldtl.store.measurements import MeasurementRows
+from fieldtl.store.offline_record import copy_checked
 from fieldtl.store.pg_accounts import MIN_PASSWORD_CHARS, Account, AccountRules, Member  # noqa: F401 - re-exported
 from fieldtl.store.pg_database import PgDatabase, Session
 from fieldtl.store.pg_schema import PROJECT_ROLES
@@ -148,10 +149,17 @@ class ServerStore(AccountRules, Store):
         needs a role on the take's project); StoreError if the server lacks it."""
         path = self.cache_dir / take.file_name
         if not path.is_file():
-            with self._guard("read the audio of", "take", take.id, READ), self._read() as db:
-                if not pg_blobs.fetch(db, take.file_name, take.sha256, path):
-                    raise StoreError(f"the audio of {echo(take.original_name)} is missing from the team server")
+            self._fetch(take, path)
         return path.resolve()
+
+    def copy_audio(self, take: TakeRecord, target: Path) -> Path:
+        """Write the take's audio to the new file ``target`` (SHA-256 checked), from this client's
+        cached copy when there, else straight from the server (a check-out keeps no second copy)."""
+        cached = self.cache_dir / take.file_name
+        if cached.is_file():
+            return copy_checked(cached, target, take.sha256)
+        self._fetch(take, target)
+        return target
 
     def clean_files(self, *, stale_s: float = STALE_INCOMING_S) -> tuple[PurePath, ...]:   # type: ignore[override]
         """Remove the audio no take names from the server (under the write lock; returned as
@@ -196,6 +204,13 @@ class ServerStore(AccountRules, Store):
         return tuple(AuditEntry(*r) for r in found)
 
     # --- internals ---------------------------------------------------------------------------------
+
+    def _fetch(self, take: TakeRecord, target: Path) -> None:
+        """The take's audio from the server to ``target``; the record is trusted only as far as the
+        account's role on the take's project (checked in the same read)."""
+        with self._guard("read the audio of", "take", take.id, READ), self._read() as db:
+            if not pg_blobs.fetch(db, take.file_name, take.sha256, target):
+                raise StoreError(f"the audio of {echo(take.original_name)} is missing from the team server")
 
     @contextmanager
     def _guard(self, what: str, kind: str, ident: int, roles: frozenset[str]) -> Iterator[None]:
