@@ -27,6 +27,15 @@ def _sha256(data):
     return hashlib.sha256(data).hexdigest()
 
 
+def test_each_server_has_its_own_cache_folder_in_the_data_folder(tmp_path):
+    mine = pg_blobs.cache_dir_for("postgresql://ann@db.example:5432/team", tmp_path)
+    assert mine.parent == tmp_path / "team-cache"                      # never the device's own audio/ folder
+    assert pg_blobs.cache_dir_for("postgresql://tom:pw@db.example:5432/team", tmp_path) == mine   # another account
+    for other in ("postgresql://ann@db.example:5433/team", "postgresql://ann@db.example:5432/teams",
+                  "postgresql://ann@db2.example:5432/team"):
+        assert pg_blobs.cache_dir_for(other, tmp_path) != mine
+
+
 @pytest.fixture
 def server(pg_url, tmp_path):  # noqa: F811
     with open_store(pg_url, cache_dir=tmp_path / "cache") as opened:

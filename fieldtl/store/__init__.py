@@ -2,7 +2,8 @@
 
 ``Store.open(path | ":memory:")`` opens (and migrates) a store; :func:`default_database_path`
 is where the app keeps its own. :func:`export_project` / :func:`import_project` move a whole
-project between machines as one zip archive.
+project between machines as one zip archive. A team server (fieldtl.store.postgres) is the same
+Store on PostgreSQL, keeping its audio in the database too.
 """
 
 from fieldtl.store.archive import export_project, import_project

@@ -34,11 +34,12 @@ STAGED = "fieldtl_staged_blobs"        # a push's audio, sent before it takes th
 
 def cache_dir_for(url: str, data_dir: Path) -> Path:
     """The default cache folder of the server at ``url`` in this device's data folder."""
+    from psycopg import Error
     from psycopg.conninfo import conninfo_to_dict
 
     try:
         parts = conninfo_to_dict(url)
-    except Exception:  # noqa: BLE001 - an unparsable URL is refused when connecting, with its own message
+    except Error:         # an unparsable URL is refused when connecting, with its own message
         parts = {"host": url}
     where = f"{parts.get('host', '')}:{parts.get('port', '')}/{parts.get('dbname', '')}"
     return data_dir / CACHE_FOLDER / hashlib.sha256(where.encode("utf-8")).hexdigest()[:16]
