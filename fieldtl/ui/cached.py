@@ -9,6 +9,7 @@ from __future__ import annotations
 import contextlib
 import importlib
 import os
+import sys
 import threading
 import time
 from collections.abc import Iterator
@@ -22,7 +23,13 @@ from fieldtl.store import Store
 from fieldtl.store.location import open_store
 from fieldtl.store.survey_import import import_survey
 from fieldtl.survey import Survey, load_survey
-from fieldtl.testrun import BackgroundMeasurer, TestTakes, assess_survey, measure_test_takes, store_cache
+from fieldtl.testrun import (
+    BackgroundMeasurer,
+    TestTakes,
+    assess_survey,
+    measure_test_takes,
+    store_cache,
+)
 from fieldtl.ui import login
 
 DEMO_SURVEY = Path(__file__).resolve().parents[2] / "sample_audio" / "survey.toml"
@@ -31,8 +38,9 @@ DEMO_PROJECT = "Invented demo: Brackenfold House (a fictional building)"
 # reads every stored take from the store and would otherwise pay it on the first new take), then
 # what the Results and Report pages import (charts, tables, the PDF writer; about 2 s together):
 # loaded by a background thread once the takes are measured, so neither waits on a first visit.
-LATER_MODULES = ("fieldtl.analysis.levels", "fieldtl.analysis.decay", "fieldtl.analysis.interrupted",
-                 "fieldtl.audio.calibration", "fieldtl.ui.chart", "fieldtl.report.export", "fieldtl.report.pdf")
+MEASURING_MODULES = ("fieldtl.analysis.levels", "fieldtl.analysis.decay", "fieldtl.analysis.interrupted",
+                     "fieldtl.audio.calibration")
+LATER_MODULES = (*MEASURING_MODULES, "fieldtl.ui.chart", "fieldtl.report.export", "fieldtl.report.pdf")
 
 
 def _release(opened: tuple[Store, BackgroundMeasurer]) -> None:
@@ -66,11 +74,30 @@ def _load_later_modules(measurer: BackgroundMeasurer) -> None:
             return
 
 
+def prepare_measuring() -> None:
+    """Import what measuring a new take needs now, in the background, without waiting for a pause:
+    the Takes page calls this once it is drawn, as a take may arrive at any moment there."""
+    with _activity:
+        if _runs["measuring_started"] or all(name in sys.modules for name in MEASURING_MODULES):
+            return
+        _runs["measuring_started"] = True
+    threading.Thread(target=_import_all, args=(MEASURING_MODULES,), name="fieldtl-imports-measuring",
+                     daemon=True).start()
+
+
+def _import_all(names: tuple[str, ...]) -> None:
+    for name in names:
+        try:
+            importlib.import_module(name)
+        except Exception:  # noqa: BLE001 - only a head start: measuring reports any problem itself
+            return
+
+
 # Page runs in progress and when the last one ended: the background imports wait for a pause
 # (measured: importing during the first Takes page after a restart made it 2-4 times slower).
 QUIET_S = 2.0
 _activity = threading.Condition()
-_runs = {"active": 0, "ended": time.monotonic()}
+_runs = {"active": 0, "ended": time.monotonic(), "measuring_started": False}
 
 
 @contextlib.contextmanager

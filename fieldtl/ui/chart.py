@@ -7,7 +7,7 @@ import pandas as pd
 
 from fieldtl.assess import Assessment
 from fieldtl.construction import Comparison
-from fieldtl.iso12999 import band_uncertainty_source      # not from report.plot: that imports matplotlib
+from fieldtl.iso12999 import band_uncertainty_source  # (report.plot has it too, but imports matplotlib)
 
 FONT_PX = 12          # at least 11 px on a 390 px phone: Vega-Lite draws text at this size, unscaled
 TEXT_COLOUR = "#333333"          # 12.6:1 on white; Vega's default grey axis text is lighter

@@ -148,3 +148,5 @@ with common.fenced():
         takeview.draw(store, test, takes, titles, take_names(takes, test_type=setup.test_type))
     st.page_link("views/results.py", label="See the results", icon="📊")
     common.cautions()
+    if not pasted:
+        cached.prepare_measuring()      # a restarted app: the analysis imported before the next take arrives
