@@ -1,4 +1,6 @@
-"""An interactive band chart for phones (Vega-Lite through Altair): text at 12 px whatever the width."""
+"""An interactive band chart for phones (Vega-Lite through Altair): text at 12 px whatever the width.
+
+Imports no matplotlib (fieldtl.report.plot does): the Results page's first visit stays light."""
 
 from __future__ import annotations
 
@@ -7,7 +9,7 @@ import pandas as pd
 
 from fieldtl.assess import Assessment
 from fieldtl.construction import Comparison
-from fieldtl.iso12999 import band_uncertainty_source  # (report.plot has it too, but imports matplotlib)
+from fieldtl.iso12999 import band_uncertainty_source
 
 FONT_PX = 12          # at least 11 px on a 390 px phone: Vega-Lite draws text at this size, unscaled
 TEXT_COLOUR = "#333333"          # 12.6:1 on white; Vega's default grey axis text is lighter
