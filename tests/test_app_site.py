@@ -359,3 +359,14 @@ def test_an_impact_test_from_pasted_levels_reaches_a_verdict_with_the_tables_num
     shown_db = int(table.loc["L'nT,w", "dB"])
     assert f"compared value L'nT,w = {shown_db} dB" in verdict
     assert "no calibration" not in _texts(at)
+
+
+def test_the_app_chart_imports_no_matplotlib():
+    # The Results and Construction pages draw Vega-Lite charts; matplotlib (about 0.4 s to import on
+    # this machine) is for the PDF only, so a first visit to Results does not pay for it.
+    import subprocess
+    import sys
+
+    probe = "import sys, fieldtl.ui.chart; print('matplotlib' in sys.modules)"
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=120, check=True)
+    assert done.stdout.strip() == "False"
