@@ -272,7 +272,8 @@ def test_the_apps_clean_up_at_start_leaves_the_team_servers_audio_alone(site):
         assert list(laptop.audio_dir.glob("*.wav")) == []               # its own unused copies did go
     with open_store(site["url"], cache_dir=site["data"].parent / "another") as server:
         takes = server.list_takes(site["a"].id)
-        assert [hashlib.sha256(server.take_path(t).read_bytes()).hexdigest() for t in takes] == [t.sha256 for t in takes]
+        read_back = [hashlib.sha256(server.take_path(t).read_bytes()).hexdigest() for t in takes]
+        assert read_back == [t.sha256 for t in takes]
 
 
 def test_an_address_that_is_not_a_team_server_is_one_line(site):

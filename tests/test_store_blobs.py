@@ -60,7 +60,8 @@ def test_the_database_refuses_a_blob_that_is_not_what_its_name_says(server, pg_u
         with pytest.raises(psycopg.errors.CheckViolation), psycopg.connect(pg_url) as raw:
             raw.execute("INSERT INTO audio_blobs (file_name, size_bytes, data) VALUES (%s, %s, %b)", values)
     with psycopg.connect(pg_url) as raw:    # the right bytes under their name: taken
-        raw.execute("INSERT INTO audio_blobs (file_name, size_bytes, data) VALUES (%s, %s, %b)", (name, len(data), data))
+        raw.execute("INSERT INTO audio_blobs (file_name, size_bytes, data) VALUES (%s, %s, %b)",
+                    (name, len(data), data))
     assert _blobs(server) == {name}
 
 
@@ -122,7 +123,8 @@ def test_projects_move_between_the_server_and_a_device_by_archive(server, pg_url
     export_project(server, project.id, tmp_path / "project.zip")
     with Store.open(tmp_path / "device" / "fieldtl.sqlite3") as device:
         copy = import_project(device, tmp_path / "project.zip")
-        assert [_sha256(device.take_path(t).read_bytes()) for t in device.snapshot(copy.id).takes] == [_sha256(shared)] * 2
+        takes = device.snapshot(copy.id).takes
+        assert [_sha256(device.take_path(t).read_bytes()) for t in takes] == [_sha256(shared)] * 2
     with open_store(pg_url, cache_dir=tmp_path / "other") as other:
         again = import_project(other, tmp_path / "project.zip")         # into the server: one blob for both
         assert _blobs(other) == {_sha256(shared) + ".wav"}
@@ -135,7 +137,8 @@ def test_audio_removed_by_a_clean_while_a_push_uploads_is_sent_again(site, monke
     data = wav_bytes(frequency_hz=900.0)
     dropped = ann.add_take(site["a"].id, data=data, original_name="dropped.wav", role="receiving")
     ann.delete_take(dropped.id)                                         # its audio unused on the server now
-    laptop.add_take(_local_test(laptop, local, AIRBORNE.title).id, data=data, original_name="site.wav", role="receiving")
+    local_a = _local_test(laptop, local, AIRBORNE.title)
+    laptop.add_take(local_a.id, data=data, original_name="site.wav", role="receiving")
     real_stage = pg_blobs.stage
 
     def stage_then_clean(db, files):

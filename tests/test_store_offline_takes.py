@@ -209,7 +209,8 @@ def test_a_push_sends_only_audio_the_server_lacks(site, monkeypatch):
     laptop.add_take(local_a.id, data=wav_bytes(frequency_hz=1300.0), original_name="new.wav", role="receiving")
     sent = []
     real_send = pg_blobs._send
-    monkeypatch.setattr(pg_blobs, "_send", lambda db, table, name, *a: sent.append(name) or real_send(db, table, name, *a))
+    monkeypatch.setattr(pg_blobs, "_send",
+                        lambda db, table, name, *a: sent.append(name) or real_send(db, table, name, *a))
     assert push(laptop, tom, local).takes_added == 1
     new = _by_name(ann.list_takes(site["a"].id), "new.wav")
     assert sent == [new.file_name]                                      # not the two checked-out recordings

@@ -97,7 +97,8 @@ def test_checkout_and_push_from_the_command_line(pg_url, monkeypatch, capsys, tm
         assert [t.original_name for t in ann.list_takes(test.id)] == ["office.wav", "site.wav"]
     with open_store(pg_url, cache_dir=tmp_path / "another") as server:   # the pushed audio, from the database
         site = server.list_takes(test.id)[1]
-        assert hashlib.sha256(server.take_path(site).read_bytes()).hexdigest() == hashlib.sha256(wav_bytes()).hexdigest()
+        expected = hashlib.sha256(wav_bytes()).hexdigest()
+        assert hashlib.sha256(server.take_path(site).read_bytes()).hexdigest() == expected
 
 
 def test_the_team_command_imports_no_store_until_an_action_runs():
