@@ -40,8 +40,7 @@ def fenced() -> Iterator[None]:
     traceback goes to the server's log only.
     """
     try:
-        with cached.page_run():      # background imports wait while a page is drawn
-            yield
+        yield
     except FieldTLError as exc:
         st.error(md(exc))
         cautions()

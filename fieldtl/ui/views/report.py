@@ -6,7 +6,6 @@ import streamlit as st
 
 from fieldtl.errors import FieldTLError
 from fieldtl.report.export import assessment_to_csv, assessment_to_json, json_text
-from fieldtl.report.pdf import ReportDetails, assessment_to_pdf
 from fieldtl.ui import cached, common, gate, review, versions
 
 REPORT_SETTING = "report_details"
@@ -50,13 +49,18 @@ with common.fenced():
                 saved = details
                 st.success("Details saved with the test.")
 
-    details = ReportDetails(project=project.name, client=project.client, site_address=project.address,
-                            engineer=saved.get("engineer", project.engineer),
-                            organisation=saved.get("organisation", ""), measurement_date=saved.get("measurement_date", ""),
-                            instruments=saved.get("instruments", ""),
-                            positions_description=saved.get("positions_description", ""), notes=saved.get("notes", ""))
     stem = f"fieldtl-test-{test.id}"
     if st.button("Make the PDF report"):
+        # imported here: the PDF writer loads matplotlib, which the page itself does not need
+        from fieldtl.report.pdf import ReportDetails, assessment_to_pdf
+
+        details = ReportDetails(project=project.name, client=project.client, site_address=project.address,
+                                engineer=saved.get("engineer", project.engineer),
+                                organisation=saved.get("organisation", ""),
+                                measurement_date=saved.get("measurement_date", ""),
+                                instruments=saved.get("instruments", ""),
+                                positions_description=saved.get("positions_description", ""),
+                                notes=saved.get("notes", ""))
         with st.spinner("Writing the report…"):
             st.session_state["fieldtl.report_pdf"] = (test.id, assessment_to_pdf(assessment, details=details))
     made = st.session_state.get("fieldtl.report_pdf")
