@@ -71,3 +71,26 @@ def test_band_sets_prepared_once_give_what_each_analysis_gives_alone():
         for name in ("T20", "T30", "EDT"):
             assert together.spectrum(name).values == single.spectrum(name).values
         assert together.all_findings() == single.all_findings()
+
+
+@pytest.mark.parametrize("sample_rate_hz", [44_100.0, 48_000.0, 96_000.0])
+def test_every_decay_band_filter_meets_iec_61260_1_class_1_at_its_rate(sample_rate_hz):
+    # IEC 61260-1:2014 class 1 relative attenuation (the limits of tests/test_filterbank.py) for each
+    # 50-5000 Hz band filter at the rate it runs at, with the anti-alias low-passes before it; aliases
+    # of the decimations are left to the fold test above
+    from test_filterbank import mask_limits_db, mask_x
+
+    from fieldtl.analysis.filterbank import anti_alias_sos
+    from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, exact_centre_hz
+
+    for nominal_hz in THIRD_OCTAVES_50_5000_HZ:
+        stage = decay_stage(nominal_hz, fraction=3, sample_rate_hz=sample_rate_hz)
+        rate_hz = sample_rate_hz / 2**stage
+        frequency_hz = np.geomspace(1.0, 0.4999 * rate_hz, 5_000)
+        magnitude = np.abs(signal.sosfreqz(band_sos(nominal_hz, sample_rate_hz=rate_hz), worN=frequency_hz,
+                                           fs=rate_hz)[1])
+        for k in range(stage):
+            magnitude *= np.abs(signal.sosfreqz(anti_alias_sos(), worN=frequency_hz, fs=sample_rate_hz / 2**k)[1])
+        attenuation_db = -20 * np.log10(np.maximum(magnitude, 1e-300))
+        low_db, high_db = mask_limits_db(mask_x(frequency_hz, exact_centre_hz(nominal_hz), 3))
+        assert np.all(attenuation_db >= low_db) and np.all(attenuation_db <= high_db), (nominal_hz, stage)
