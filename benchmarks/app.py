@@ -4,9 +4,10 @@ Starts ``fieldtl app`` on a fresh data folder (the invented demo is imported and
 background), walks the demo, then restarts the server on the same folder and walks again, as a
 tester reopening the app on site would. Those two walks act the moment a page is shown. A third
 walk, after another restart ("paced"), waits PAUSE_S before each action after the first page, as
-a person reading the page or choosing a file does; the app uses such pauses to import what later
-pages need (fieldtl/ui/cached.py). Each figure is the wall time from the action (page opened,
-button clicked, file chosen) until what it should show is visible:
+a person reading the page or choosing a file does (work the app starts in the background, such as
+the analysis import the Takes page begins, then ends before the next action rather than during
+it). Each figure is the wall time from the action (page opened, button clicked, file chosen) until
+what it should show is visible:
 
 - first page: the Projects page after the server answers its health check;
 - demo test: the Takes page with every take's card (each drawn with what it showed, once measured);
