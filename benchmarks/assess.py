@@ -6,8 +6,8 @@ JSON results (in memory). Everything is imported first; each run is in this proc
 designs made by the first run are reused, as they are for the later takes of one CLI run.
 For comparison, every audio file the survey names is read whole with soundfile, in one thread. The
 assessment runs twice per round: on one thread, and on the threads ``fieldtl assess`` uses (one per
-core that other processes leave free, by the load average when this starts, at most 4:
-fieldtl.measure.default_workers; numpy, scipy and soundfile release the GIL). All are timed
+core while the load average when this starts stays below the number of cores, fewer above it, at
+most 4: fieldtl.measure.default_workers; numpy, scipy and soundfile release the GIL). All are timed
 REPEATS times, taking turns; the medians are compared. The load average is printed before and
 after: on a shared machine the figures move with it.
 

@@ -40,8 +40,8 @@ __all__ = ["BackgroundMeasurer", "MeasurementCache", "TakeOutcome", "TestTakes",
 
 def assess_survey(survey: Survey, *, cache: MeasurementCache | None = None, options: AssessOptions = AssessOptions(),
                   progress: Progress | None = None, workers: int | None = None) -> Assessment:
-    """Measure the survey's takes (through ``cache`` if given; by ``workers`` threads, default one per
-    idle core, see :func:`fieldtl.measure.default_workers`) and assess the test."""
+    """Measure the survey's takes (through ``cache`` if given; by ``workers`` threads, default by the cores
+    and the load, see :func:`fieldtl.measure.default_workers`) and assess the test."""
     measured = measure_with(survey, cache=cache, progress=progress, workers=workers)
     return assess(survey, measured.takes, calibrated=measured.calibrated, findings=measured.findings, options=options)
 

@@ -419,9 +419,9 @@ def test_an_error_stops_the_takes_still_being_measured(tmp_path, monkeypatch):
     assert len(blocks_after_error) < 100
 
 
-@pytest.mark.parametrize(("cores", "load", "workers"), [(2, 0.0, 2), (2, 0.99, 2), (2, 1.0, 1), (2, 7.5, 1),
-                                                         (8, 0.2, 4), (8, 5.0, 3), (1, 0.0, 1)])
-def test_the_default_threads_are_the_cores_other_processes_leave_free(monkeypatch, cores, load, workers):
+@pytest.mark.parametrize(("cores", "load", "workers"), [(2, 0.0, 2), (2, 1.99, 2), (2, 2.0, 1), (2, 7.5, 1),
+                                                         (8, 0.2, 4), (8, 5.0, 4), (8, 6.0, 3), (1, 0.0, 1)])
+def test_the_default_threads_follow_the_cores_and_the_load(monkeypatch, cores, load, workers):
     import fieldtl.measure as measure
 
     monkeypatch.setattr(measure.os, "sched_getaffinity", lambda pid: set(range(cores)), raising=False)
