@@ -81,15 +81,20 @@ def test_a_reviewer_cannot_add_takes_through_the_app(team):
     at.session_state["fieldtl.project_id"], at.session_state["fieldtl.test_id"] = team["project"].id, team["test"].id
     _page(at, "takes.py")
     assert at.title[0].value == "Takes"
-    at.get("file_uploader")[0].upload("s1.wav", wav_bytes(), "audio/wav")
-    _ok(at.run())
-    assert "reviewer role" in _shown(at) and "may not add take" in _shown(at)
-    assert team["ann"].list_takes(team["test"].id) == ()
-    tom = _signed_in("tom")                      # the same upload by a tester is stored: the refusal is the role's
+    # The reviewer's page offers nothing that adds or changes a take: no uploader, no recorder tab,
+    # no pasted levels, no change area; it says why.
+    assert at.get("file_uploader") == [] and len(at.tabs) == 0
+    assert "Use these band levels" not in _shown(at) and "Take to change" not in _shown(at)
+    assert "You review this project" in _shown(at)
+    tom = _signed_in("tom")                      # the same page for a tester: the upload is offered and stored
     tom.session_state["fieldtl.project_id"], tom.session_state["fieldtl.test_id"] = team["project"].id, team["test"].id
-    _page(tom, "takes.py").get("file_uploader")[0].upload("s1.wav", wav_bytes(), "audio/wav")
+    _page(tom, "takes.py")
+    assert "You review this project" not in _shown(tom)
+    tom.get("file_uploader")[0].upload("s1.wav", wav_bytes(), "audio/wav")
     _ok(tom.run())
     assert [t.original_name for t in team["ann"].list_takes(team["test"].id)] == ["s1.wav"]
+    _ok(at.run())                               # the reviewer reads the tester's take, still without a change area
+    assert "s1.wav (source room" in _shown(at).replace("\\", "") and "Take to change" not in _shown(at)
 
 
 def test_an_account_without_a_role_cannot_open_the_project(team):

@@ -28,6 +28,14 @@ def signed_in() -> bool:
     return st.session_state.get(ACCOUNT_KEY) is not None
 
 
+def reviews_only(project_id: int) -> bool:
+    """Whether this session's account only reads and signs off on the project (the reviewer role).
+
+    The pages then offer no way to add or change takes; the server refuses such writes anyway.
+    """
+    return server_configured() and signed_in() and account_store().role_on(project_id) == "reviewer"
+
+
 def account_store():  # -> fieldtl.store.postgres.ServerStore
     """This session's account handle (the gate lets no page run before there is one)."""
     return st.session_state[ACCOUNT_KEY]

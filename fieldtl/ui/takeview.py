@@ -29,7 +29,8 @@ def choose(take_id: int) -> None:
 
 
 def draw(store: Store, test: TestRecord, takes: Sequence[TakeRecord], titles: Mapping[int, str],
-         names: Mapping[str, str]) -> None:
+         names: Mapping[str, str], *, editable: bool = True) -> None:
+    """The takes as cards, newest first, and (``editable``) the one place to change the take chosen."""
     included = [t for t in takes if not t.excluded]
     st.subheader(f"Takes so far ({len(included)} used, {len(takes) - len(included)} left out)")
     # What comes and goes (undo lines, the bar, a calibration problem) sits in containers that are
@@ -42,7 +43,7 @@ def draw(store: Store, test: TestRecord, takes: Sequence[TakeRecord], titles: Ma
             measured = cached.measured_takes(test.id)      # the store's calibration rule, each take measured once
         if measured.calibration_problem:
             st.error(common.md(common.plain_roles(renamed_text(measured.calibration_problem, names))))
-    if takes:
+    if takes and editable:
         _change_area(store, test, takes, titles, names)
     lines = _card_lines(test, takes, included, measured, titles, names)
     for take in reversed(takes):                         # the newest first
