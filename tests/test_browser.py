@@ -18,7 +18,14 @@ import pytest
 REPO = Path(__file__).resolve().parents[1]
 PHONE = {"width": 390, "height": 844}
 CODE = "k7m2-q9tx-4hvw"
-PAGE_PATHS = ("", "projects", "setup", "takes", "results", "construction", "report", "signals", "safety")
+PAGE_PATHS = ("", "projects", "setup", "takes", "results", "construction", "complaints", "report", "signals", "safety",
+              "team", "account")
+
+
+def test_every_page_file_is_typed_by_the_gate_test():
+    """A page added to fieldtl/ui/views/ without being listed here would escape the browser gate check."""
+    views = Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "views"
+    assert {p.stem for p in views.glob("*.py")} == set(PAGE_PATHS) - {""}
 
 
 def _serve(tmp_path, *extra):
