@@ -96,7 +96,7 @@ def _parser() -> argparse.ArgumentParser:
                                                    "exports older than an hour")
     clean.add_argument("--data-dir", type=Path, help="folder of the project store (default: your user data folder)")
     clean.add_argument("--store", help="postgresql:// URL of a team server to clean instead (default: FIELDTL_STORE_URL "
-                                       "when no --data-dir is given); its audio is in DATA_DIR/audio")
+                                       "when no --data-dir is given); its audio is in its database")
     clean.set_defaults(run=_run_store_clean)
 
     from fieldtl.noise.command import add_record_options
