@@ -9,11 +9,11 @@ import streamlit as st
 from streamlit.testing.v1 import AppTest
 from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
+from team_seed import PASSWORD
 
 from fieldtl.store.location import open_store
 
 APP = str(Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "app.py")
-PASSWORD = "invented-password-1"
 
 
 @pytest.fixture

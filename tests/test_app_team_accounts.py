@@ -11,13 +11,13 @@ import streamlit as st
 from streamlit.testing.v1 import AppTest
 from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
+from team_seed import PASSWORD, seed_team
 
 from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.location import open_store
 from fieldtl.ui import access
 
 APP = str(Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "app.py")
-PASSWORD = "invented-password-1"
 SECRET = "Invented project Wrenholt"
 
 
@@ -29,14 +29,9 @@ def team(pg_url, tmp_path, monkeypatch):  # noqa: F811
     monkeypatch.setenv("FIELDTL_NO_DEMO", "1")
     monkeypatch.setattr(access, "LIMITER", access.GuessLimiter())
     with open_store(pg_url) as server:
-        for name in ("ann", "tom", "rita", "olga"):
-            server.create_account(name, PASSWORD)
+        ann, project = seed_team(server, SECRET, outsiders=("olga",))
         server.create_account("ada", PASSWORD, admin=True)
-        ann = server.login("ann", PASSWORD)
-        project = ann.create_project(SECRET)
         test = ann.create_test(project.id, AIRBORNE)
-        ann.grant(project.id, "tom", "tester")
-        ann.grant(project.id, "rita", "reviewer")
         st.cache_resource.clear()
         st.cache_data.clear()
         yield {"server": server, "ann": ann, "project": project, "test": test}

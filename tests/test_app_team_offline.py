@@ -13,13 +13,13 @@ import streamlit as st
 from streamlit.testing.v1 import AppTest
 from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
+from team_seed import PASSWORD, seed_team
 
 from fieldtl.store import Store
 from fieldtl.store.location import open_store
 from fieldtl.ui import access, teamlink
 
 APP = str(Path(__file__).resolve().parents[1] / "fieldtl" / "ui" / "app.py")
-PASSWORD = "invented-password-1"
 TITLE_B = "Invented room C to room D"
 FORM = ["Team server address", "Account", "Password"]        # the server's recordings are in its database
 
@@ -36,12 +36,7 @@ def site(pg_url, tmp_path, monkeypatch):  # noqa: F811
     monkeypatch.setattr(access, "LIMITER", access.GuessLimiter())
     # The office's handle on the team server, with its own cache (not this device's data folder).
     with open_store(pg_url, cache_dir=tmp_path / "office-cache") as server:
-        for name in ("ann", "tom", "rita", "olga"):
-            server.create_account(name, PASSWORD)
-        ann = server.login("ann", PASSWORD)
-        project = ann.create_project("Invented project Harrowgate")
-        ann.grant(project.id, "tom", "tester")
-        ann.grant(project.id, "rita", "reviewer")
+        ann, project = seed_team(server, "Invented project Harrowgate", outsiders=("olga",))
         a = ann.create_test(project.id, AIRBORNE)
         b = ann.create_test(project.id, replace(AIRBORNE, title=TITLE_B))
         for hz in (300.0, 310.0):

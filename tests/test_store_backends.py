@@ -22,6 +22,7 @@ import test_store as contract
 from conftest import reference_missing
 from test_store import AIRBORNE, wav_bytes
 from test_store_crash import read_line, start_writer
+from team_seed import PASSWORD, seed_team
 
 from fieldtl.errors import InputError, StoreError
 from fieldtl.store import MIGRATIONS, Store
@@ -29,7 +30,6 @@ from fieldtl.store.errors import PermissionDenied, StaleEditError
 from fieldtl.store.location import open_store
 from fieldtl.store.pg_schema import TEAM_BODIES
 
-PASSWORD = "invented-password-1"
 
 
 def _server_url():
@@ -209,12 +209,7 @@ def test_values_survive_the_server_exactly(store):
 def team(pg_url, tmp_path):
     """The server handle, an owner (ann), a tester (tom), a reviewer (rita), an outsider (olga), one test."""
     with open_store(pg_url) as server:
-        for name in ("ann", "tom", "rita", "olga"):
-            server.create_account(name, PASSWORD)
-        ann = server.login("ann", PASSWORD)
-        project = ann.create_project("Invented project")
-        ann.grant(project.id, "tom", "tester")
-        ann.grant(project.id, "rita", "reviewer")
+        ann, project = seed_team(server, "Invented project", outsiders=("olga",))
         test = ann.create_test(project.id, AIRBORNE)
         yield {name: server.login(name, PASSWORD) for name in ("ann", "tom", "rita", "olga")} | {
             "server": server, "project": project, "test": test}

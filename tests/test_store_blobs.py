@@ -12,6 +12,7 @@ import pytest
 from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
 from test_store_offline import _blobs, _local_test, site  # noqa: F401 - the shared fixture
+from team_seed import PASSWORD
 
 import fieldtl.store.pg_blobs as pg_blobs
 from fieldtl.errors import StoreError
@@ -20,7 +21,6 @@ from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.location import open_store
 from fieldtl.store.offline import check_out, push
 
-PASSWORD = "invented-password-1"
 
 
 def _sha256(data):

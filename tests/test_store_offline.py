@@ -17,13 +17,13 @@ from pathlib import Path
 import pytest
 from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
+from team_seed import PASSWORD, seed_team
 
 from fieldtl.store import Store
 from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.location import open_store
 from fieldtl.store.offline import FieldDifference, check_out, push
 
-PASSWORD = "invented-password-1"
 ROOT = Path(__file__).resolve().parents[1]
 
 
@@ -31,12 +31,7 @@ ROOT = Path(__file__).resolve().parents[1]
 def site(pg_url, tmp_path):  # noqa: F811
     """ann owns a project with tests A and B (two takes on A); tom tests, rita reviews; tom's laptop store."""
     with open_store(pg_url) as server:        # its audio in the database; this process's cache in FIELDTL_DATA_DIR
-        for name in ("ann", "tom", "rita"):
-            server.create_account(name, PASSWORD)
-        ann = server.login("ann", PASSWORD)
-        project = ann.create_project("Invented project")
-        ann.grant(project.id, "tom", "tester")
-        ann.grant(project.id, "rita", "reviewer")
+        ann, project = seed_team(server, "Invented project")
         a = ann.create_test(project.id, AIRBORNE)
         b = ann.create_test(project.id, replace(AIRBORNE, title="Invented room C to room D"))
         for hz in (300.0, 310.0):
