@@ -16,7 +16,7 @@ import numpy as np
 
 from fieldtl.bands import BandSpectrum
 from fieldtl.findings import Finding
-from fieldtl.insulation.common import low_frequency_applies
+from fieldtl.insulation.low_frequency import low_frequency_applies
 from fieldtl.qa import (MIN_CORNER_S, MIN_CORNERS, MIN_DECAYS, MIN_LOUDSPEAKER_POSITIONS, MIN_MICROPHONE_POSITIONS,
                         MIN_TAPPING_POSITIONS, TakeSummary)
 from fieldtl.units import energetic_mean_db, energetic_sum_db

@@ -17,7 +17,7 @@ import numpy as np
 
 from fieldtl.bands import BandSpectrum
 from fieldtl.findings import Finding
-from fieldtl.insulation.common import low_frequency_applies
+from fieldtl.insulation.low_frequency import low_frequency_applies
 
 MIN_LOUDSPEAKER_POSITIONS = 2        # ISO 16283-1, single loudspeaker moved (from memory, high confidence)
 MIN_MICROPHONE_POSITIONS = 5         # ISO 16283-1/-2, fixed positions per room per source position (from memory)

@@ -12,7 +12,7 @@ import pytest
 
 from fieldtl.audio.calibration import Calibration, calibration_drift
 from fieldtl.bands import THIRD_OCTAVES_100_3150_HZ, BandSpectrum
-from fieldtl.insulation.common import background_corrected_db
+from fieldtl.insulation.background import background_corrected_db
 from fieldtl.qa import (
     TakeSummary,
     check_against_lab_rating,

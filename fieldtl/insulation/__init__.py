@@ -9,17 +9,11 @@ from fieldtl.insulation.airborne import (
     combine_source_positions,
     separating_area_m2,
 )
-from fieldtl.insulation.common import (
-    BandSpread,
-    background_corrected_db,
-    corner_level_db,
-    low_frequency_applies,
-    low_frequency_level_db,
-    octave_level_difference_db,
-    octave_level_sum_db,
-    octave_limited,
-)
+from fieldtl.insulation.background import background_corrected_db
+from fieldtl.insulation.common import BandSpread
 from fieldtl.insulation.impact import ImpactMeasurement, ImpactResult, TappingPosition, impact_insulation
+from fieldtl.insulation.low_frequency import corner_level_db, low_frequency_applies, low_frequency_level_db
+from fieldtl.insulation.octaves import octave_level_difference_db, octave_level_sum_db, octave_limited
 
 __all__ = [
     "AirborneMeasurement", "AirborneResult", "BandSpread", "ImpactMeasurement", "ImpactResult",

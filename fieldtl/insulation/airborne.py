@@ -16,8 +16,8 @@ import numpy as np
 from fieldtl.bands import BandSpectrum
 from fieldtl.errors import InputError
 from fieldtl.findings import Finding
+from fieldtl.insulation.background import BACKGROUND_RULE
 from fieldtl.insulation.common import (
-    BACKGROUND_RULE,
     REFERENCE_AREA_M2,
     REFERENCE_TIME_S,
     REQUIRED_BANDS_HZ,
@@ -27,12 +27,12 @@ from fieldtl.insulation.common import (
     analysis_bands_hz,
     average_reverberation_time,
     freeze_sequences,
-    low_frequency_reverberation,
     ignored_bands_rule,
-    room_levels,
     to_spectrum,
     weighted_energy_mean_db,
 )
+from fieldtl.insulation.low_frequency import low_frequency_reverberation
+from fieldtl.insulation.room_levels import room_levels
 from fieldtl.validate import AREA_M2, REVERBERATION_S, VOLUME_M3, number
 
 SourceCombination = Literal["energy", "arithmetic", "simultaneous"]
