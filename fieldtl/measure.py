@@ -10,8 +10,10 @@ loads them.
 
 from __future__ import annotations
 
+import functools
 import os
 import queue
+import sys
 import threading
 from collections.abc import Callable, Sequence
 from concurrent.futures import Future, ThreadPoolExecutor
@@ -43,6 +45,14 @@ Progress = Callable[[str, float], None]         # (take name, fraction of that t
 TakeMeasurer = Callable[..., tuple[TakeSummary, tuple[Finding, ...]]]   # measure_take's signature
 MAX_WORKERS = 4          # threads measuring takes at once (each holds one take's audio or blocks)
 PROGRESS_EVERY_S = 0.1   # how often the calling thread passes on the takes' progress while it waits
+# glibc allocator settings while takes are measured (mallopt parameters M_MMAP_THRESHOLD = -3 and
+# M_TOP_PAD = -2, glibc malloc.h): arrays up to 32 MB (one block of any recording, MAX_BLOCK_BYTES) come
+# from the heap, and up to 16 MB of freed heap stay with the process instead of going back to the system
+# after every take. With glibc's defaults each 6 s take's temporaries (blocks, FFT batches, filter
+# outputs: about 8 MB) were handed back and faulted in again page by page: 45 000 page faults and a
+# third of the level takes' time per demo survey (benchmarks/assess.py).
+KEEP_HEAP_ARRAYS_BYTES = 32 * 1024 * 1024
+KEEP_FREED_HEAP_BYTES = 16 * 1024 * 1024
 
 
 @dataclass(frozen=True, slots=True)
@@ -174,12 +184,31 @@ class _Stopped(Exception):
     """A take's measurement left unfinished: another take failed or the run was interrupted."""
 
 
+@functools.cache
+def keep_freed_memory() -> bool:
+    """Set the allocator as KEEP_HEAP_ARRAYS_BYTES and KEEP_FREED_HEAP_BYTES say, once per process
+    (the first take measured does it). True when glibc took both settings; False elsewhere (other
+    systems and C libraries keep their own allocator's behaviour; only the speed differs)."""
+    if not sys.platform.startswith("linux"):
+        return False
+    import ctypes
+
+    try:
+        mallopt = ctypes.CDLL(None).mallopt
+    except (OSError, AttributeError):
+        return False
+    mallopt.argtypes, mallopt.restype = [ctypes.c_int, ctypes.c_int], ctypes.c_int
+    taken = [mallopt(-3, KEEP_HEAP_ARRAYS_BYTES), mallopt(-2, KEEP_FREED_HEAP_BYTES)]   # 1 where taken
+    return all(taken)
+
+
 def measure_take(spec: TakeSpec, *, level_offset_db: float,
                  progress: Progress | None = None) -> tuple[TakeSummary, tuple[Finding, ...]]:
     """Band levels (level roles) or reverberation times (decays) of one recording."""
     from fieldtl.analysis.levels import stationary_levels
     from fieldtl.audio.ingest import SampleStats, iter_blocks, open_recording, read_samples
 
+    keep_freed_memory()
     recording = open_recording(spec.file, channel=spec.channel)
     name = recording.name
     stats = SampleStats(sample_rate_hz=recording.sample_rate_hz, source_name=name)
@@ -269,6 +298,7 @@ def calibrate_file(file: Path, channel: int, reference_db: float) -> Calibration
     from fieldtl.audio.calibration import calibration_from_tone
     from fieldtl.audio.ingest import open_recording, read_samples
 
+    keep_freed_memory()
     recording = open_recording(file, channel=channel)
     return calibration_from_tone(read_samples(recording), sample_rate_hz=recording.sample_rate_hz,
                                  source_name=recording.name, reference_db=reference_db)
