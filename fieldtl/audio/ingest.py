@@ -253,18 +253,21 @@ class SampleStats:
         self._frames += block.size
         if not block.size:
             return
-        magnitude = np.abs(block)
-        peak = float(magnitude.max())
+        # peak = max |x| from the extremes, without a copy of |x|: most blocks need no magnitude at all
+        peak = max(float(block.max()), -float(block.min()))
         self._peak = max(self._peak, peak)
         self._sum += float(block.sum())
-        if peak > FULL_SCALE:
+        magnitude = np.abs(block) if peak >= NEAR_FULL_SCALE else None
+        if magnitude is not None and peak > FULL_SCALE:
             self._over += int(np.count_nonzero(magnitude > FULL_SCALE))
         zero = block == 0.0
         zeros = int(np.count_nonzero(zero))
         self._zeros += zeros
-        # 0 < |x| < tiny: every sample below tiny but the exact zeros
-        self._denormal += int(np.count_nonzero(magnitude < DENORMAL_BELOW)) - zeros
-        self._clip_runs.update(magnitude >= NEAR_FULL_SCALE if peak >= NEAR_FULL_SCALE else None)
+        # 0 < |x| < tiny: every sample strictly between -tiny and tiny but the exact zeros
+        small = block < DENORMAL_BELOW
+        small &= block > -DENORMAL_BELOW
+        self._denormal += int(np.count_nonzero(small)) - zeros
+        self._clip_runs.update(magnitude >= NEAR_FULL_SCALE if magnitude is not None else None)
         self._zero_runs.update(zero if zeros else None)
 
     def facts(self) -> SignalFacts:
