@@ -38,8 +38,9 @@ if TYPE_CHECKING:
 
 # Bump when a change to the analysis changes what any take measures (band levels, decays, their
 # findings): every stored measurement of another version is then measured again (fieldtl.testrun).
-ANALYSIS_VERSION = 3     # 2: level takes' band Leq by the spectral route (within 0.1 dB of 1's); 3: decay bands
+ANALYSIS_VERSION = 4     # 2: level takes' band Leq by the spectral route (within 0.1 dB of 1's); 3: decay bands
                          # filtered at lowered rates (demo: T20 within 0.15 %, dynamic ranges within 0.1 dB of 2's)
+                         # 4: level takes' 1 s A levels filtered only over the inner seconds (within 1e-8 dB of 3's)
 FIELD_RANGE_HZ = (50.0, 5000.0)                 # ISO 16283-1/-2 bands with the optional extensions
 Progress = Callable[[str, float], None]         # (take name, fraction of that take done)
 TakeMeasurer = Callable[..., tuple[TakeSummary, tuple[Finding, ...]]]   # measure_take's signature
@@ -228,7 +229,7 @@ def measure_take(spec: TakeSpec, *, level_offset_db: float,
     # band Leq by the spectral route, the A-weighted 1 s levels for the stationarity checks.
     levels = stationary_levels(stats.watch(iter_blocks(recording)), sample_rate_hz=recording.sample_rate_hz,
                                level_offset_db=level_offset_db, band_range_hz=FIELD_RANGE_HZ,
-                               total_frames=recording.frames, source_name=name,
+                               total_frames=recording.frames, source_name=name, inner_history=True,
                                progress=None if progress is None else (lambda done: progress(name, done)))
     facts = stats.facts()
     history_std_db, event_db = _history_statistics(levels)
@@ -305,8 +306,9 @@ def calibrate_file(file: Path, channel: int, reference_db: float) -> Calibration
 
 
 def _history_statistics(levels: StationaryLevels) -> tuple[float | None, float | None]:
-    """Scatter of whole 1 s A-weighted levels, and the loudest one above the median."""
-    laeq_db = levels.laeq_history_db[1:-1]          # first: settling filters; last: a partial second
+    """Scatter of whole 1 s A-weighted levels, and the loudest one above the median (the inner
+    history: without the first second, settling filters, and the last, often partial)."""
+    laeq_db = levels.laeq_history_db
     laeq_db = laeq_db[np.isfinite(laeq_db)]
     if laeq_db.size < 3:
         return None, None

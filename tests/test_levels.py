@@ -327,3 +327,49 @@ def test_stationary_levels_refuse_what_the_full_analysis_refuses():
         levels.stationary_levels([tone(1000.0, 0.1, 0.3)], sample_rate_hz=RATE_HZ, source_name="short.wav")
     with pytest.raises(InputError, match=r"^nan\.wav: non-finite sample"):
         levels.stationary_levels([np.full(48_000, np.nan)], sample_rate_hz=RATE_HZ, source_name="nan.wav")
+
+
+@pytest.mark.parametrize("duration_s", [6.0, 6.5])
+def test_inner_history_reads_the_inner_seconds_of_the_whole_signal_filtered_from_rest(duration_s):
+    # reference computed here the straightforward way: the whole recording through the A filter
+    # (scipy.signal.sosfilt from rest), mean square per 1 s interval; the inner history holds
+    # intervals 1 .. last-1 of it, although its filter only starts 0.1 s before interval 1
+    from scipy import signal
+
+    from fieldtl.analysis.weighting import weighting_sos
+
+    rng = np.random.default_rng(3)
+    samples = rng.normal(0.0, 0.1, round(duration_s * RATE_HZ)) * np.repeat(rng.uniform(0.5, 2.0, 7), RATE_HZ)[
+        : round(duration_s * RATE_HZ)]                                  # a different level every second
+    weighted = signal.sosfilt(weighting_sos("A", sample_rate_hz=RATE_HZ).copy(), samples)
+    seconds = math.ceil(duration_s)
+    expected_db = [10 * math.log10(np.mean(np.square(weighted[k * 48_000:(k + 1) * 48_000]))) + 94.0
+                   for k in range(1, seconds - 1)]
+    blocks = [samples[i:i + 65_536] for i in range(0, samples.size, 65_536)]
+    inner = levels.stationary_levels(blocks, sample_rate_hz=RATE_HZ, level_offset_db=94.0, band_range_hz=(50.0, 5000.0),
+                                     total_frames=samples.size, inner_history=True)
+    assert inner.history_first_interval == 1 and inner.laeq_history_db.size == seconds - 2
+    assert inner.laeq_history_db == pytest.approx(expected_db, abs=1e-6)
+    assert inner.laeq_db == pytest.approx(energetic_mean(expected_db), abs=1e-6)
+    full = levels.stationary_levels(blocks, sample_rate_hz=RATE_HZ, level_offset_db=94.0, band_range_hz=(50.0, 5000.0),
+                                    total_frames=samples.size)
+    assert full.history_first_interval == 0
+    assert inner.laeq_history_db == pytest.approx(full.laeq_history_db[1:-1], abs=1e-6)
+    assert inner.band_leq.values == full.band_leq.values                 # the bands do not change
+
+
+def energetic_mean(levels_db: list[float]) -> float:
+    return 10 * math.log10(np.mean(10 ** (np.asarray(levels_db) / 10)))
+
+
+def test_inner_history_of_a_take_too_short_for_one_inner_second_is_empty_and_needs_the_length():
+    samples = tone(1000.0, 0.1, 1.9)                  # intervals 0 and 1 (partial): nothing inner
+    short = levels.stationary_levels([samples], sample_rate_hz=RATE_HZ, band_range_hz=(50.0, 5000.0),
+                                     total_frames=samples.size, inner_history=True)
+    assert short.laeq_history_db.size == 0
+    longer = tone(1000.0, 0.1, 2.01)                  # 10 ms into a third interval: interval 1 is inner
+    one = levels.stationary_levels([longer], sample_rate_hz=RATE_HZ, band_range_hz=(50.0, 5000.0),
+                                   total_frames=longer.size, inner_history=True)
+    assert one.laeq_history_db == pytest.approx([sine_level_db(0.1)], abs=0.02)   # A is 0 dB at 1 kHz
+    with pytest.raises(ValueError, match="total_frames"):
+        levels.stationary_levels([samples], sample_rate_hz=RATE_HZ, inner_history=True)

@@ -167,9 +167,10 @@ class StationaryLevels:
     duration_s: float
     level_offset_db: float
     band_leq: BandSpectrum           # quantity "Leq", by the spectral route
-    laeq_db: float                   # from WEIGHTING_SETTLE_S to the end
+    laeq_db: float                   # from WEIGHTING_SETTLE_S to the end (inner_history: over the history's intervals)
     interval_s: float
     laeq_history_db: np.ndarray      # per interval, read-only; nan where no sample is left after the settling
+    history_first_interval: int = 0  # the interval laeq_history_db starts with (1 with inner_history)
 
 
 def stationary_levels(
@@ -183,6 +184,7 @@ def stationary_levels(
     total_frames: int | None = None,
     progress: Callable[[float], None] | None = None,
     source_name: str = "signal",
+    inner_history: bool = False,
 ) -> StationaryLevels:
     """Band Leq, LAeq and the LAeq history of a stationary take, and nothing else.
 
@@ -191,34 +193,50 @@ def stationary_levels(
     through the time-domain A filter), with the same checks, errors and ``progress`` calls, but
     without C weighting, the F/S time weighting and their maxima: what a take of a sound
     insulation test needs, at about a third of the cost.
-    """
+
+    ``inner_history`` (needs ``total_frames``) keeps the intervals a stationarity check reads: all but
+    the first (partly settling) and the last (often partial). The A filter then runs from
+    WEIGHTING_SETTLE_S before interval 1 to the end of the last but one (4.1 s of a 6 s take), and
+    ``laeq_db`` is the level over those intervals."""
+    if inner_history and total_frames is None:
+        raise ValueError("inner_history needs total_frames (where the last interval starts)")
     bank, shortest_s = _checked_bank(sample_rate_hz, fraction, band_range_hz, history_interval_s, total_frames,
                                      source_name)
     spectral = SpectralBands(bank)
     sos = weighting_sos("A", sample_rate_hz=bank.sample_rate_hz).copy()   # writable copy for sosfilt
     state = np.zeros((sos.shape[0], 2))
-    table = IntervalTable(1, round(history_interval_s * sample_rate_hz), "sum")
+    interval_frames = round(history_interval_s * sample_rate_hz)
+    table = IntervalTable(1, interval_frames, "sum")
     settle = math.ceil(WEIGHTING_SETTLE_S * bank.sample_rate_hz)
+    filter_from, filter_to, counted_from = 0, math.inf, settle   # A-filtered from rest over [from, to)
+    if inner_history:
+        last_interval = max(0, -(-total_frames // interval_frames) - 1)
+        filter_from, filter_to = max(0, interval_frames - settle), last_interval * interval_frames
+        counted_from = max(interval_frames, settle)
     frames = 0
     for chunk in _chunks(blocks, source_name, STATIONARY_CHUNK_FRAMES):
         spectral.push(chunk)
-        weighted, state = signal.sosfilt(sos, chunk, zi=state)
-        table.add(0, weighted, first_index=frames, step=1, valid_from=settle)
+        start, stop = max(filter_from, frames), min(filter_to, frames + chunk.size)
+        if stop > start:
+            weighted, state = signal.sosfilt(sos, chunk[start - frames : stop - frames], zi=state)
+            table.add(0, weighted, first_index=start, step=1, valid_from=counted_from)
         frames += chunk.size
         if progress is not None and total_frames:
             progress(min(1.0, frames / total_frames))
     _require_length(frames, sample_rate_hz, shortest_s, source_name, bank)
     if progress is not None:
         progress(1.0)
+    first_interval = 1 if inner_history else 0
     sums, counts = table.totals()
     with np.errstate(divide="ignore", invalid="ignore"):
-        history_db = 10 * np.log10(table.rows()[:, 0] / table.row_counts()[:, 0]) + level_offset_db
+        history_db = 10 * np.log10(table.rows()[first_interval:, 0] / table.row_counts()[first_interval:, 0])
         laeq_db = float(10 * np.log10(sums[0] / counts[0]) + level_offset_db)
     return StationaryLevels(source_name=source_name, sample_rate_hz=bank.sample_rate_hz,
                             duration_s=frames / bank.sample_rate_hz, level_offset_db=level_offset_db,
                             band_leq=_spectral_band_leq(bank, spectral, level_offset_db),
-                            laeq_db=laeq_db,
-                            interval_s=history_interval_s, laeq_history_db=_frozen(history_db))
+                            laeq_db=laeq_db, interval_s=history_interval_s,
+                            laeq_history_db=_frozen(history_db + level_offset_db),
+                            history_first_interval=first_interval)
 
 
 def _spectral_band_leq(bank: FilterBank, spectral: SpectralBands, level_offset_db: float) -> BandSpectrum:
