@@ -15,7 +15,8 @@ from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
 from team_seed import PASSWORD, seed_team
 
-from fieldtl.store import Store
+from fieldtl.errors import StoreError
+from fieldtl.store import Store, offline
 from fieldtl.store.location import open_store
 from fieldtl.ui import access, teamlink
 
@@ -219,6 +220,24 @@ def test_a_reviewer_cannot_add_takes_through_a_push(site):
     assert not at.exception, [e.value for e in at.exception]
     assert at.error[0].value.startswith("Nothing was sent.") and "reviewer role" in at.error[0].value
     assert site["ann"].snapshot(site["project"].id) == before
+
+
+def test_a_push_sent_but_not_brought_here_does_not_say_nothing_was_sent(site, monkeypatch):
+    at = _checked_out(site, "tom")
+    with Store.open(site["laptop"]) as laptop:
+        local_a = _local_test(laptop, AIRBORNE.title)
+        laptop.add_take(local_a.id, data=wav_bytes(frequency_hz=720.0), original_name="t.wav", role="receiving")
+
+    def disk_full(*args, **kwargs):          # this device fails after the server has committed
+        raise StoreError("fieldtl.sqlite3: cannot write (disk full)")
+
+    monkeypatch.setattr(offline, "_apply_here", disk_full)
+    _button(at, "Check what would be sent").click().run()
+    _button(at, "Send to the team server").click().run()
+    assert not at.exception, [e.value for e in at.exception]
+    assert not any("Nothing was sent" in e.value for e in at.error)
+    assert at.warning[0].value.startswith("Sent to the team server, but this device's copy was not brought up")
+    assert "t.wav" in _server_takes(site)
 
 
 def test_an_account_without_a_role_is_offered_nothing_to_check_out(site):

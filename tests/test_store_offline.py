@@ -19,7 +19,8 @@ from test_store import AIRBORNE, wav_bytes
 from test_store_backends import pg_url  # noqa: F401 - the fresh-schema fixture
 from team_seed import PASSWORD, seed_team
 
-from fieldtl.store import Store
+from fieldtl.store import Store, offline
+from fieldtl.errors import StoreError
 from fieldtl.store.errors import PermissionDenied
 from fieldtl.store.location import open_store
 from fieldtl.store.offline import FieldDifference, check_out, push
@@ -107,6 +108,32 @@ def test_choosing_the_server_settings_updates_the_laptop(site):
     assert laptop.get_test(local_b.id).setup.settings == {"theirs": 1}
     assert ann.get_test(site["b"].id).setup.settings == {"theirs": 1}
     assert push(laptop, tom, local).conflicts == ()
+
+
+def test_a_push_that_reached_the_server_but_not_this_device_says_so(site, monkeypatch):
+    """The server commits first; should updating the laptop then fail, the error must not claim that
+    nothing was sent, and a repeated push brings the server's version here."""
+    tom, ann, laptop = site["tom"], site["ann"], site["laptop"]
+    local = check_out(tom, site["project"].id, laptop)
+    local_a = _local_test(laptop, local, AIRBORNE.title)
+    local_b = _local_test(laptop, local, "Invented room C to room D")
+    laptop.add_take(local_a.id, data=wav_bytes(frequency_hz=420.0), original_name="late.wav", role="receiving")
+    laptop.update_test(local_b.id, replace(site["b"].setup, settings={"mine": 1}))
+    ann.update_test(site["b"].id, replace(site["b"].setup, settings={"theirs": 1}))
+
+    def disk_full(*args, **kwargs):
+        raise StoreError("fieldtl.sqlite3: cannot write (disk full)")
+
+    monkeypatch.setattr(offline, "_apply_here", disk_full)
+    with pytest.raises(offline.SentNotUpdatedHere, match=r"^sent to the team server, but this device's copy"):
+        push(laptop, tom, local, resolve={local_b.id: "server"})
+    assert "late.wav" in {t.original_name for t in ann.list_takes(site["a"].id)}     # it was sent
+    assert laptop.get_test(local_b.id).setup.settings == {"mine": 1}                 # not brought here
+    monkeypatch.undo()
+    assert [c.local_test_id for c in push(laptop, tom, local).conflicts] == [local_b.id]   # the same choice again
+    assert push(laptop, tom, local, resolve={local_b.id: "server"}).pushed
+    assert laptop.get_test(local_b.id).setup.settings == {"theirs": 1}
+    assert [t.original_name for t in ann.list_takes(site["a"].id)].count("late.wav") == 1   # not sent twice
 
 
 def test_a_reviewer_can_check_out_but_not_push(site):

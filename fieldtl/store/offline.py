@@ -36,7 +36,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from fieldtl.errors import InputError
+from fieldtl.errors import FieldTLError, InputError, StoreError
 from fieldtl.store import pg_blobs, rows
 from fieldtl.store.files import place_file
 from fieldtl.store.offline_plan import (FieldDifference, SettingsConflict, TestWork, plan, settings_of,
@@ -46,11 +46,16 @@ from fieldtl.store.offline_record import (CheckoutRecord, list_records, read_rec
 from fieldtl.store.postgres import READ, WRITE, ServerStore
 from fieldtl.store.schema import check_take_fields, utc_now
 from fieldtl.store.sqlite import Store
-from fieldtl.validate import echo
+from fieldtl.validate import clean, echo
 
 __all__ = ["CheckoutRecord", "FieldDifference", "PushPreview", "PushResult", "SettingsConflict", "check_out",
            "checked_out_projects", "preview_push", "push"]
 RESOLUTIONS = ("mine", "server")
+
+
+class SentNotUpdatedHere(StoreError):
+    """A push reached the server (committed) but updating this device afterwards failed: nothing is
+    lost, and a repeated push shows the same choices again and brings the server's version here."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -142,11 +147,15 @@ def push(local: Store, server: ServerStore, local_project_id: int, *,
         write_record(record_path, record | {"tests": record["tests"] | {
             str(w.test.id): {"server_test_id": w.server_test_id, "base": settings_of(w.test), "takes": {}}
             for w in work if w.server_test is None}})
-    _apply_here(local, server, work)
-    for w in work:
-        base = settings_of(w.server_test if w.settings == "server" and w.server_test else w.test)
-        record["tests"][str(w.test.id)] = {"server_test_id": w.server_test_id, "base": base, "takes": w.links}
-    write_record(record_path, record)
+    try:                    # the server has committed: what fails now fails only on this device
+        _apply_here(local, server, work)
+        for w in work:
+            base = settings_of(w.server_test if w.settings == "server" and w.server_test else w.test)
+            record["tests"][str(w.test.id)] = {"server_test_id": w.server_test_id, "base": base, "takes": w.links}
+        write_record(record_path, record)
+    except (FieldTLError, OSError) as exc:
+        raise SentNotUpdatedHere(f"sent to the team server, but this device's copy was not brought up to date "
+                                 f"({clean(str(exc), 160)}); push again to bring it here") from None
     tests_added, tests_updated, takes_added, takes_updated, takes_removed = _counts(work)
     return PushResult(True, (), takes_added, tests_added, tests_updated, takes_updated, takes_removed)
 

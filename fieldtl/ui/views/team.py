@@ -132,6 +132,9 @@ with common.fenced():
                 previews.pop(pid, None)
                 try:
                     result = offline.push(local, link.account, pid, resolve=resolve)
+                except offline.SentNotUpdatedHere as exc:     # the server has it; this device is behind
+                    said = common.md(teamlink.plain(exc))
+                    outcomes[pid] = ("warning", f"{said[:1].upper()}{said[1:]}.")
                 except FieldTLError as exc:
                     outcomes[pid] = ("error", f"Nothing was sent. {common.md(teamlink.plain(exc))}")
                 else:
