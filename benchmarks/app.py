@@ -1,12 +1,13 @@
 """The app's response times in a real browser (Debian's chromium through Playwright, phone viewport).
 
 Starts ``fieldtl app`` on a fresh data folder (the invented demo is imported and measured in the
-background), walks the demo, then restarts the server on the same folder and walks again, as a
-tester reopening the app on site would. Those two walks act the moment a page is shown. A third
-walk, after another restart ("paced"), waits PAUSE_S before each action after the first page, as
-a person reading the page or choosing a file does (work the app starts in the background, such as
-the analysis import the Takes page begins, then ends before the next action rather than during
-it). Each figure is the wall time from the action (page opened, button clicked, file chosen) until
+background, by the warm-up child ``fieldtl app`` starts while the server boots), walks the demo,
+then restarts the server on the same folder and walks again, as a tester reopening the app on site
+would. Those two walks act the moment a page is shown. Two more walks ("paced"), one on a second
+fresh folder and one after another restart, wait PAUSE_S before each action after the first page,
+as a person reading the page or choosing a file does (work the app starts in the background, such
+as the analysis import the Takes page begins, then ends before the next action rather than during
+it). ``FIELDTL_NO_WARMUP=1 python benchmarks/app.py`` measures the same without the warm-up child. Each figure is the wall time from the action (page opened, button clicked, file chosen) until
 what it should show is visible:
 
 - first page: the Projects page after the server answers its health check;
@@ -143,9 +144,11 @@ def main() -> None:
         browser = playwright.chromium.launch(executable_path=chromium, args=[
             "--disable-background-networking", "--disable-component-update", "--no-first-run", "--disable-sync"])
         try:
-            for prefix, upload, pause_s in (("first start:", False, 0.0), ("after a restart:", True, 0.0),
-                                            ("after a restart, paced:", True, PAUSE_S)):
-                server, url = serve(Path(folder) / "store")
+            for prefix, store, upload, pause_s in (("first start:", "store", False, 0.0),
+                                                   ("first start, paced:", "paced", False, PAUSE_S),
+                                                   ("after a restart:", "store", True, 0.0),
+                                                   ("after a restart, paced:", "store", True, PAUSE_S)):
+                server, url = serve(Path(folder) / store)
                 try:
                     page = browser.new_page(viewport=PHONE)
                     walk(page, url, figures, prefix, upload=upload, pause_s=pause_s)
@@ -155,7 +158,8 @@ def main() -> None:
         finally:
             browser.close()
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
-    print(f"app response times in chromium at 390 x 844, load average {load:.2f}")
+    warmup = "without" if os.environ.get("FIELDTL_NO_WARMUP") else "with"
+    print(f"app response times in chromium at 390 x 844 ({warmup} the warm-up child), load average {load:.2f}")
     for name, seconds in figures.items():
         print(f"{name:<48} {seconds:6.2f} s")
 

@@ -12,7 +12,7 @@ from fieldtl.cautions import CAUTIONS
 from fieldtl.errors import InputError
 
 
-def add_app_command(sub: argparse._SubParsersAction) -> None:  # noqa: SLF001
+def add_app_command(sub: argparse._SubParsersAction) -> None:
     """The parser of `fieldtl app`."""
     app = sub.add_parser("app", help="start the field app (opens the invented demo project on first start)")
     app.add_argument("--host", default="127.0.0.1",
@@ -32,6 +32,7 @@ def add_app_command(sub: argparse._SubParsersAction) -> None:  # noqa: SLF001
 
 
 LOCAL_HOSTS = ("127.0.0.1", "localhost", "::1")
+NO_WARMUP_VAR = "FIELDTL_NO_WARMUP"     # set: the server measures every take itself (as before the warm-up)
 
 
 def run_app(args: argparse.Namespace) -> int:
@@ -82,6 +83,15 @@ def run_app(args: argparse.Namespace) -> int:
     print(f"CAUTION: {CAUTIONS[0]}\nCAUTION: {CAUTIONS[1]}")
     sys.stdout.flush()
     sys.stderr.flush()
+    if not server and not os.environ.get(NO_WARMUP_VAR):
+        # A child measures the store's takes (and imports the demo on a first start) while the server
+        # boots; the server reads its reports and reaps it (fieldtl.warmup).
+        from fieldtl import warmup
+        from fieldtl.store.connection import DATABASE_NAME
+
+        watch = warmup.start(data_dir / DATABASE_NAME)
+        if watch is not None:
+            env[warmup.ENV_VAR] = watch
     if (root / ".streamlit" / "config.toml").is_file():
         os.chdir(root)
     # The server replaces this process: SIGTERM and SIGINT reach it directly and no child is left behind.

@@ -10,7 +10,7 @@ from pathlib import Path
 from live_server import free_port, group_alive, start_server, stop_server, wait_until_healthy
 import pytest
 
-from fieldtl import cli
+from fieldtl import cli, warmup
 from fieldtl.ui import access
 
 REPO = Path(__file__).resolve().parents[1]
@@ -28,6 +28,9 @@ def launched(monkeypatch, tmp_path):
         raise SystemExit(0)
 
     monkeypatch.setattr(os, "execve", fake_execve)
+    # No real warm-up child here: forking the test process would copy pytest (tests/test_warmup.py forks
+    # from a launcher process, and the last tests below from `fieldtl app` itself).
+    monkeypatch.setattr(warmup, "start", lambda database: seen.setdefault("warm-up", database) and "4242:9")
 
     def launch(*argv):
         with pytest.raises(SystemExit):
@@ -64,6 +67,67 @@ def test_a_weak_chosen_code_is_refused_in_one_line(monkeypatch, tmp_path, capsys
     source = "--access-code" if where == "option" else access.ENV_VAR
     assert error.startswith(f"fieldtl: {source}: too easy to guess") and error.count("\n") == 1
     assert "4f2a9c" not in error and not (tmp_path / "store").exists()
+
+
+def test_the_server_is_handed_the_warm_up_of_its_sqlite_store(launched, monkeypatch, tmp_path):
+    seen = launched()
+    assert seen["warm-up"] == tmp_path / "store" / "fieldtl.sqlite3"
+    assert seen["env"][warmup.ENV_VAR] == "4242:9"
+
+
+def test_no_warm_up_for_a_team_server_or_when_turned_off(launched, monkeypatch):
+    monkeypatch.setenv("FIELDTL_NO_WARMUP", "1")
+    assert "warm-up" not in launched() and warmup.ENV_VAR not in launched()["env"]
+    monkeypatch.delenv("FIELDTL_NO_WARMUP")
+    seen = launched("--store", "postgresql://tester@db.example/fieldtl")
+    assert "warm-up" not in seen and warmup.ENV_VAR not in seen["env"]
+
+
+def group_members(group_id: int) -> dict[int, str]:
+    """Process id → state letter of every process in the group (from /proc)."""
+    members = {}
+    for entry in Path("/proc").iterdir():
+        try:
+            fields = (entry / "stat").read_text().rpartition(")")[2].split()
+        except (OSError, ValueError):
+            continue
+        if entry.name.isdigit() and int(fields[2]) == group_id:
+            members[int(entry.name)] = fields[0]
+    return members
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not Path("/proc/self/stat").is_file(), reason="reads processes from /proc (Linux)")
+@pytest.mark.parametrize("stop_signal", [signal.SIGTERM, signal.SIGINT, signal.SIGKILL])
+def test_the_warm_up_child_ends_with_the_server(tmp_path, stop_signal):
+    """The demo's first measuring still going on in the warm-up child when the server is stopped."""
+    env = {k: v for k, v in os.environ.items() if k not in (access.ENV_VAR, "FIELDTL_NO_DEMO", "FIELDTL_NO_WARMUP")}
+    server = start_server([sys.executable, "-m", "fieldtl.cli", "app", "--port", str(free_port()), "--data-dir",
+                           str(tmp_path / "store")], cwd=REPO, env=env)
+    try:
+        deadline = time.monotonic() + 30.0
+        while time.monotonic() < deadline:
+            children = {pid: state for pid, state in group_members(server.pid).items() if pid != server.pid}
+            if children and b"streamlit" in Path(f"/proc/{server.pid}/cmdline").read_bytes():
+                break
+            time.sleep(0.02)
+        assert list(children.values()) in (["R"], ["S"], ["D"])   # the child, still at work, and only it
+        (child,) = children
+        os.kill(server.pid, stop_signal)                  # to the server only, not the group
+        server.wait(timeout=15)
+        # It does not finish its work (a second or more here): it ends as soon as the server has gone
+        # (its pipe from the server closes; at the latest its next report finds no reader).
+        deadline = time.monotonic() + 1.0
+        while group_members(server.pid).get(child, "Z") != "Z" and time.monotonic() < deadline:
+            time.sleep(0.02)
+        assert group_members(server.pid).get(child, "Z") == "Z"
+        deadline = time.monotonic() + 5.0
+        while group_alive(server.pid) and time.monotonic() < deadline:
+            time.sleep(0.05)
+        assert not group_alive(server.pid)
+    finally:
+        if group_alive(server.pid):
+            stop_server(server)
 
 
 @pytest.mark.slow

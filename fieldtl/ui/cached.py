@@ -7,19 +7,17 @@ assessment on top of them is cheap and also cached per server process here.
 from __future__ import annotations
 
 import importlib
-import os
 import sys
 import threading
-from pathlib import Path
 
 import streamlit as st
 
+from fieldtl import warmup
 from fieldtl.assess import Assessment
 from fieldtl.measure_cache import analysis_version
 from fieldtl.store import Store
 from fieldtl.store.location import open_store
-from fieldtl.store.survey_import import import_survey
-from fieldtl.survey import Survey, load_survey
+from fieldtl.survey import Survey
 from fieldtl.testrun import (
     BackgroundMeasurer,
     TestTakes,
@@ -29,8 +27,6 @@ from fieldtl.testrun import (
 )
 from fieldtl.ui import login
 
-DEMO_SURVEY = Path(__file__).resolve().parents[2] / "sample_audio" / "survey.toml"
-DEMO_PROJECT = "Invented demo: Brackenfold House (a fictional building)"
 # What measuring a new take imports (scipy.signal and the analysis, about 1.3 s): a restarted app
 # reads every stored take from the store and would otherwise pay it on the first new take. The
 # Takes page starts this import in the background once it is drawn (prepare_measuring). Nothing
@@ -43,22 +39,57 @@ _measuring_import = {"started": False}
 _measuring_lock = threading.Lock()
 
 
-def _release(opened: tuple[Store, BackgroundMeasurer]) -> None:
-    opened[1].stop()
+class _Opened:
+    """The store handle and the background measurer, which starts once the warm-up child (if any) has ended."""
+
+    def __init__(self, handle: Store, watch: warmup.Watch | None) -> None:
+        self.store = handle
+        self.watch = watch
+        self._measurer: BackgroundMeasurer | None = None
+        self._stopped = False
+        self._lock = threading.Lock()
+        if watch is None:
+            self._start()
+        else:
+            watch.when_finished(self._start)
+
+    def _start(self) -> None:
+        with self._lock:
+            if not self._stopped:
+                self._measurer = BackgroundMeasurer(self.store, every_test=True)
+
+    def measurer(self) -> BackgroundMeasurer | None:
+        with self._lock:
+            return self._measurer
+
+    def stop(self) -> None:
+        with self._lock:
+            self._stopped = True
+            if self._measurer is not None:
+                self._measurer.stop()
+
+
+def _release(opened: _Opened) -> None:
+    opened.stop()
 
 
 @st.cache_resource(on_release=_release)
-def _opened() -> tuple[Store, BackgroundMeasurer]:
+def _opened() -> _Opened:
     """One store handle per server process (the Store serialises its connection with a lock), and
-    one background thread measuring every stored test's takes, most recently changed project first."""
+    one background thread measuring every stored test's takes, most recently changed project first.
+
+    `fieldtl app` starts a warm-up child (fieldtl.warmup) that imports the demo on a first start and
+    measures the takes while the server boots: the store is opened here once its import is done,
+    and this process's measurer starts when the child has ended (it then finds the rows, or
+    measures what is left)."""
+    watch = None if login.server_configured() else warmup.server_watch()
+    importing = watch is not None and not watch.wait_imported()
     handle = open_store()         # FIELDTL_STORE_URL's team server, else the SQLite store in the data folder
     handle.clean_files()          # orphan audio and stale .incoming-*/.part leftovers of earlier runs
     handle.measurements.forget_other_versions(analysis_version())
-    if not handle.list_projects() and DEMO_SURVEY.is_file() and not os.environ.get("FIELDTL_NO_DEMO"):
-        project = handle.create_project(DEMO_PROJECT, client="Invented client (demo data)",
-                                        address="Invented address, not a real place", engineer="Demo")
-        import_survey(handle, load_survey(DEMO_SURVEY), project_id=project.id)
-    return handle, BackgroundMeasurer(handle, every_test=True)
+    if not importing:             # a child still importing after IMPORT_WAIT_S imports it alone
+        warmup.import_demo(handle)
+    return _Opened(handle, watch)
 
 
 def prepare_measuring() -> None:
@@ -82,16 +113,22 @@ def _import_all(names: tuple[str, ...]) -> None:
 
 def store() -> Store:
     """The store the pages use: with a team server, the signed-in account's handle (its roles apply)."""
-    return login.account_store() if login.server_configured() else _opened()[0]
+    return login.account_store() if login.server_configured() else _opened().store
 
 
 def server_store() -> Store:
     """The process's own store handle (a team server's: signs accounts in; no roles apply to it)."""
-    return _opened()[0]
+    return _opened().store
 
 
-def measurer() -> BackgroundMeasurer:
-    return _opened()[1]
+def measurer() -> BackgroundMeasurer | None:
+    """This process's background measurer; None while the warm-up child is still measuring."""
+    return _opened().measurer()
+
+
+def warm_up() -> warmup.Watch | None:
+    """The warm-up child `fieldtl app` started, if any (its progress, per test)."""
+    return _opened().watch
 
 
 def measured_takes(test_id: int) -> TestTakes:
