@@ -78,7 +78,7 @@ def warm(database: Path, report: Report) -> None:
         if wants_demo(store):
             # The demo's files are written (and synced) while the analysis is imported alongside:
             # about 0.5 s each, mostly waiting on the disk against mostly computing.
-            threading.Thread(target=_import_all, args=(ANALYSIS_MODULES,), daemon=True).start()
+            threading.Thread(target=import_ahead, args=(ANALYSIS_MODULES,), daemon=True).start()
             import_demo(store)
         report("imported")
         tests = []
@@ -129,12 +129,13 @@ def _measure_test(store: Store, test_id: int, report: Report) -> None:
     report(f"end {test_id}")
 
 
-def _import_all(names: tuple[str, ...]) -> None:
+def import_ahead(names: tuple[str, ...]) -> None:
+    """Import ``names`` now (run in a background thread); one that fails is left to its first real use."""
     for name in names:
         try:
             importlib.import_module(name)
-        except Exception:  # noqa: BLE001 - only a head start: measuring reports any problem itself
-            return
+        except Exception:  # noqa: BLE001, S112 - only a head start: that use reports any problem itself
+            continue
 
 
 def start(database: Path) -> str | None:

@@ -6,7 +6,6 @@ assessment on top of them is cheap and also cached per server process here.
 
 from __future__ import annotations
 
-import importlib
 import sys
 import threading
 
@@ -29,10 +28,14 @@ from fieldtl.ui import login
 
 # What measuring a new take imports (scipy.signal and the analysis, about 1.3 s): a restarted app
 # reads every stored take from the store and would otherwise pay it on the first new take. The
-# Takes page starts this import in the background once it is drawn (prepare_measuring). Nothing
-# else is imported ahead: an import in a background thread holds the interpreter, and importing
-# the Results and Report pages' modules that way made the first Takes page after a restart 2-4
-# times slower (2.6-4.2 s against 0.7-1.1 s, measured in Chromium at a phone's size).
+# Takes page starts this import in the background once it is drawn (prepare_measuring), after the
+# Results page's own modules (its chart with altair, the client wording: about 0.45 s), as "See
+# the results" is the tap that most often follows: Results opened at once then waits only for its
+# own imports, where it had shared the interpreter with the analysis import. Nothing else is
+# imported ahead: an import in a background thread holds the interpreter, and importing the
+# Results and Report pages' modules from the first page on made the first Takes page after a
+# restart 2-4 times slower (2.6-4.2 s against 0.7-1.1 s, measured in Chromium at a phone's size).
+RESULTS_MODULES = ("fieldtl.ui.chart", "fieldtl.report.client", "fieldtl.report.export", "fieldtl.ui.verdict_text")
 MEASURING_MODULES = ("fieldtl.analysis.levels", "fieldtl.analysis.decay", "fieldtl.analysis.interrupted",
                      "fieldtl.audio.calibration")
 _measuring_import = {"started": False}
@@ -93,22 +96,15 @@ def _opened() -> _Opened:
 
 
 def prepare_measuring() -> None:
-    """Import what measuring a new take needs now, in the background, without waiting for a pause:
-    the Takes page calls this once it is drawn, as a take may arrive at any moment there."""
+    """Import what the Results page and measuring a new take need now, in the background, without
+    waiting for a pause: the Takes page calls this once it is drawn, as a take may arrive at any
+    moment there (and the Results page is one tap away)."""
+    names = RESULTS_MODULES + MEASURING_MODULES
     with _measuring_lock:
-        if _measuring_import["started"] or all(name in sys.modules for name in MEASURING_MODULES):
+        if _measuring_import["started"] or all(name in sys.modules for name in names):
             return
         _measuring_import["started"] = True
-    threading.Thread(target=_import_all, args=(MEASURING_MODULES,), name="fieldtl-imports-measuring",
-                     daemon=True).start()
-
-
-def _import_all(names: tuple[str, ...]) -> None:
-    for name in names:
-        try:
-            importlib.import_module(name)
-        except Exception:  # noqa: BLE001 - only a head start: measuring reports any problem itself
-            return
+    threading.Thread(target=warmup.import_ahead, args=(names,), name="fieldtl-imports-measuring", daemon=True).start()
 
 
 def store() -> Store:
