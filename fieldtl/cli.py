@@ -167,7 +167,7 @@ def _run_demo(args: argparse.Namespace) -> int:
 def _run_predict(args: argparse.Namespace) -> int:
     from fieldtl.construction import construction_from_layers, load_construction, prediction_to_json
     from fieldtl.construction.predict import predict
-    from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK, marked
+    from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK
 
     if (args.construction is None) == (not args.layer):
         raise InputError("predict: give either a construction file or one or more --layer MATERIAL:THICKNESS_MM")
@@ -186,13 +186,12 @@ def _run_predict(args: argparse.Namespace) -> int:
     terms = rating.adaptation_terms_db
     print(f"Rw {rating.single_number_db} dB (C {terms['C']:+d}; Ctr {terms['Ctr']:+d})"
           + ("  — an upper bound: see the notes" if prediction.upper_bound else ""))
-    notes = [marked(note) for note in prediction.notes]       # no internal notes for the user
-    for note in notes:
+    for note in prediction.notes:
         print(f"note: {note}")
-    if any(note.endswith(UNCONFIRMED_MARK) for note in notes):
+    if any(note.endswith(UNCONFIRMED_MARK) for note in prediction.notes):
         print(EXPLANATION)
     if args.json:
-        write_json(args.json, {**prediction_to_json(prediction), "notes": notes})
+        write_json(args.json, prediction_to_json(prediction))
     return 0
 
 

@@ -38,9 +38,10 @@ if TYPE_CHECKING:
 
 # Bump when a change to the analysis changes what any take measures (band levels, decays, their
 # findings): every stored measurement of another version is then measured again (fieldtl.testrun).
-ANALYSIS_VERSION = 4     # 2: level takes' band Leq by the spectral route (within 0.1 dB of 1's); 3: decay bands
+ANALYSIS_VERSION = 5     # 2: level takes' band Leq by the spectral route (within 0.1 dB of 1's); 3: decay bands
                          # filtered at lowered rates (demo: T20 within 0.15 %, dynamic ranges within 0.1 dB of 2's)
                          # 4: level takes' 1 s A levels filtered only over the inner seconds (within 1e-8 dB of 3's)
+                         # 5: decay findings' clauses without internal notes, Finding.unconfirmed (numbers unchanged)
 FIELD_RANGE_HZ = (50.0, 5000.0)                 # ISO 16283-1/-2 bands with the optional extensions
 Progress = Callable[[str, float], None]         # (take name, fraction of that take done)
 TakeMeasurer = Callable[..., tuple[TakeSummary, tuple[Finding, ...]]]   # measure_take's signature

@@ -63,7 +63,8 @@ def check_positions(takes: Sequence[TakeSummary], *, test_type: str) -> tuple[Fi
         found.append(Finding("too_few_source_positions", "warning",
                              f"{len(speakers)} {what} position(s) measured; at least {needed} are required",
                              f"Move the {what} to another position and repeat the level measurements.",
-                             clause=f"ISO 16283-{2 if test_type == 'impact' else 1} (from memory)"))
+                             clause=f"ISO 16283-{2 if test_type == 'impact' else 1}",   # from memory
+                             unconfirmed=True))
     rooms = ("impact",) if test_type == "impact" else ("source", "receiving")
     counts = Counter((t.role, t.speaker) for t in takes if t.role in rooms)
     for role in rooms:
@@ -76,13 +77,13 @@ def check_positions(takes: Sequence[TakeSummary], *, test_type: str) -> tuple[Fi
                                      f"at least {MIN_MICROPHONE_POSITIONS} are required",
                                      f"Record {MIN_MICROPHONE_POSITIONS - n} more microphone position(s) in the "
                                      f"{room} room for source position {speaker}.",
-                                     clause="ISO 16283-1/-2 (from memory)"))
+                                     clause="ISO 16283-1/-2", unconfirmed=True))   # from memory
     decays = sum(1 for t in takes if t.role == "decay")
     if decays < MIN_DECAYS:
         found.append(Finding("too_few_decays", "warning",
                              f"{decays} decay(s) measured; at least {MIN_DECAYS} are required",
                              f"Record {MIN_DECAYS - decays} more decays at other source/microphone positions.",
-                             clause="ISO 16283-1/-2 (from memory)"))
+                             clause="ISO 16283-1/-2", unconfirmed=True))   # from memory
     return tuple(found)
 
 
@@ -262,7 +263,8 @@ def check_geometry(*, receiving_volume_m3: float, source_volume_m3: float | None
             found.append(Finding("volume_out_of_scope", "error",
                                  f"{room} room volume {volume:g} m3 is outside the {low:g}-{high:g} m3 the field "
                                  "standards are written for", "Check the volume; state the deviation in the report.",
-                                 clause="ISO 16283-2 scope (verified); ISO 16283-1 (from memory)"))
+                                 # ISO 16283-2's scope verified; ISO 16283-1's the same from memory
+                                 clause="ISO 16283-2 scope; ISO 16283-1", unconfirmed=True))
     if separating_area_m2 is not None:
         volumes = [v for v in (receiving_volume_m3, source_volume_m3) if v is not None]
         smaller = min(volumes)
@@ -275,7 +277,8 @@ def check_geometry(*, receiving_volume_m3: float, source_volume_m3: float | None
             found.append(Finding("small_separating_area", "info",
                                  f"separating area {separating_area_m2:g} m2 is below V/7.5 = "
                                  f"{smaller / SMALL_AREA_VOLUME_RATIO_M:.1f} m2; R' uses V/7.5",
-                                 "State the S rule in the report.", clause="ISO 16283-1 (from memory)"))
+                                 "State the S rule in the report.", clause="ISO 16283-1",   # from memory
+                                 unconfirmed=True))
     return tuple(found)
 
 

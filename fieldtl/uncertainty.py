@@ -21,6 +21,7 @@ import numpy as np
 
 from fieldtl.bands import BandSpectrum, require_same_bands
 from fieldtl.errors import InputError
+from fieldtl.findings import unconfirmed
 from fieldtl.insulation.airborne import AirborneResult
 from fieldtl.insulation.impact import ImpactResult
 from fieldtl.iso12999 import SITUATIONS, TableUncertainty, propagate, single_number_sensitivity
@@ -217,12 +218,13 @@ def _canonical_term(raw: str, descriptor: str, text: str) -> str:
 
 
 # Examples only, so users see the format: the figures are England & Wales Approved Document E
-# (facts sheet 11, from memory). They are not defaults; the user's local building code decides.
+# (facts sheet 11, from memory: so each label is marked unconfirmed). They are not defaults; the user's
+# local building code decides.
 EXAMPLE_REQUIREMENTS: Mapping[str, str] = MappingProxyType({
-    "EXAMPLE ONLY (England & Wales, from memory): new dwellings, separating walls and floors": "DnT,w + Ctr >= 45",
-    "EXAMPLE ONLY (England & Wales, from memory): new dwellings, separating floors, impact": "L'nT,w <= 62",
-    "EXAMPLE ONLY (England & Wales, from memory): material change of use, airborne": "DnT,w + Ctr >= 43",
-    "EXAMPLE ONLY (England & Wales, from memory): material change of use, impact": "L'nT,w <= 64",
+    unconfirmed("EXAMPLE ONLY (England & Wales): new dwellings, separating walls and floors"): "DnT,w + Ctr >= 45",
+    unconfirmed("EXAMPLE ONLY (England & Wales): new dwellings, separating floors, impact"): "L'nT,w <= 62",
+    unconfirmed("EXAMPLE ONLY (England & Wales): material change of use, airborne"): "DnT,w + Ctr >= 43",
+    unconfirmed("EXAMPLE ONLY (England & Wales): material change of use, impact"): "L'nT,w <= 64",
 })
 
 

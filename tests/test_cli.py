@@ -166,8 +166,8 @@ def test_predict_inline_layer_json(tmp_path, capsys):
 
 
 def test_predict_prints_no_internal_notes(tmp_path, capsys):
-    # The edge-loss note of Sharp's method carries a developer's mark in the code; a user sees the
-    # value marked and the mark explained once, in the terminal and in the JSON alike.
+    # The edge-loss term of ISO 12354-1 Annex C is recalled (a comment in the code says so); a user
+    # sees the value marked and the mark explained once in the terminal, the note marked in the JSON.
     code, out, _ = _run(capsys, "predict", "--layer", "concrete_dense:200", "--json", tmp_path / "p.json")
     notes = json.loads((tmp_path / "p.json").read_text())["notes"]
     assert code == 0 and any("edge-loss" in note for note in notes)

@@ -114,13 +114,3 @@ def test_the_pdf_leads_with_the_verdict_single_numbers_and_cautions_and_has_no_i
     sentence = "the tool's default, check against your copy of the standard"
     assert whole.count(sentence) == 1 and whole.index("Method") < whole.index(sentence)
     assert whole.count("†") >= 2                  # the mark beside the values, and once in the explanation
-
-
-def test_client_text_takes_out_internal_notes_and_says_which_values_are_unconfirmed():
-    from fieldtl.report.client import client_text
-    assert client_text("T per band: mean of 6 decays (ISO 16283-1/-2, from memory); more") == \
-        ("T per band: mean of 6 decays (ISO 16283-1/-2); more", True)
-    assert client_text("background correction (facts sheet 1.8)") == ("background correction", False)
-    assert client_text("edge loss (facts sheet 10, 11)") == ("edge loss", False)
-    assert client_text("ISO 16283-2 scope (verified); ISO 16283-1 (from memory)") == ("ISO 16283-2 scope; ISO 16283-1", True)
-    assert client_text("plain words stay as they are") == ("plain words stay as they are", False)

@@ -25,6 +25,7 @@ from fieldtl.insulation import (
     airborne_insulation,
     impact_insulation,
 )
+from fieldtl.findings import UNCONFIRMED_MARK
 from fieldtl.iso12999 import TableUncertainty, single_number_uncertainty
 from fieldtl.uncertainty import (
     EXAMPLE_REQUIREMENTS,
@@ -227,7 +228,9 @@ def test_requirement_round_trips_through_loose_text(requirement, space, unicode_
 def test_example_requirements_are_labelled_examples_and_parse():
     assert len(EXAMPLE_REQUIREMENTS) == 4
     for label, text in EXAMPLE_REQUIREMENTS.items():
-        assert label.startswith("EXAMPLE ONLY") and "from memory" in label
+        # recalled figures: the label says so to a user with the unconfirmed mark, never "from memory"
+        assert label.startswith("EXAMPLE ONLY") and label.endswith(UNCONFIRMED_MARK)
+        assert "memory" not in label.lower()
         parse_requirement(text)
     # Approved Document E (England & Wales, 2003 edition with amendments), purpose-built dwellings
     # (from memory, high confidence): new-build 45 / 62

@@ -38,8 +38,9 @@ CURVATURE_LIMIT_PERCENT = 10.0     # C above 10 % is suspicious (ISO 3382-2 Anne
 BT_MIN_TIME_REVERSED = 4.0         # B·T > 4 with time-reversed filtering (ISO 3382-2, from memory)
 BT_MIN_FORWARD = 16.0              # B·T > 16 with forward filtering (ISO 3382-2, from memory)
 MIN_IMPULSE_RESPONSE_S = 0.1
-CLAUSE_RANGE = "ISO 3382-2 (from memory): bottom of the evaluation range at least 10 dB above the noise"
-CLAUSE_ANNEX_B = "ISO 3382-2 Annex B (from memory)"
+# Findings citing these clauses are marked unconfirmed (Finding.unconfirmed): both are from memory.
+CLAUSE_RANGE = "ISO 3382-2: bottom of the evaluation range at least 10 dB above the noise"
+CLAUSE_ANNEX_B = "ISO 3382-2 Annex B"
 
 
 @dataclass(frozen=True, slots=True)
@@ -171,7 +172,7 @@ def decay_band_sets(impulse_response: np.ndarray, *, sample_rate_hz: float,
         finding = Finding("impulse_start_not_found", "error",
                           f"{source_name}: the response never rises 20 dB above its own tail, so its start "
                           "cannot be found", "check the recording chain and the level, then measure again",
-                          clause="ISO 3382-1 (from memory): start 20 dB below the peak")
+                          clause="ISO 3382-1: start 20 dB below the peak", unconfirmed=True)   # from memory
         return tuple(DecayAnalysis(source_name, method, "single", 1,
                                    tuple(band_without_decay(f, fraction, None, ()) for f in bands_hz), (finding,))
                      for bands_hz, fraction in sets)
@@ -252,7 +253,7 @@ def _band_result(nominal_hz: float, fraction: Fraction, lines: dict[Parameter, D
             f"{where}: {' and '.join(missing)} not evaluated: the decay stands {stands} above "
             f"the noise or ends early ({needs})",
             "raise the signal level, lower the background noise or record longer after the signal stops",
-            nominal_hz, CLAUSE_RANGE))
+            nominal_hz, CLAUSE_RANGE, unconfirmed=True))
     nonlinear = [(p, line.nonlinearity_permille) for p, line in lines.items()
                  if p != "EDT" and line is not None and line.nonlinearity_permille > NONLINEARITY_LIMIT_PERMILLE]
     if nonlinear:
@@ -261,13 +262,13 @@ def _band_result(nominal_hz: float, fraction: Fraction, lines: dict[Parameter, D
             "decay_nonlinear", "warning",
             f"{where}: the decay is not a straight line ({values}; above {NONLINEARITY_LIMIT_PERMILLE:.0f} ‰)",
             "look at the decay curve for a double slope or noise bursts and repeat the measurement",
-            nominal_hz, CLAUSE_ANNEX_B))
+            nominal_hz, CLAUSE_ANNEX_B, unconfirmed=True))
     if curvature is not None and curvature > CURVATURE_LIMIT_PERCENT:
         findings.append(Finding(
             "decay_curved", "warning",
             f"{where}: T30 is {curvature:.0f} % longer than T20 (curvature above {CURVATURE_LIMIT_PERCENT:.0f} %)",
             "the room may have a double-slope decay (coupled spaces, uneven absorption); report T20 and T30",
-            nominal_hz, CLAUSE_ANNEX_B))
+            nominal_hz, CLAUSE_ANNEX_B, unconfirmed=True))
     if bt_product is not None and bt_product < bt_limit:
         how = "time-reversed" if bt_limit == BT_MIN_TIME_REVERSED else "forward"
         findings.append(Finding(
@@ -275,7 +276,7 @@ def _band_result(nominal_hz: float, fraction: Fraction, lines: dict[Parameter, D
             f"{where}: B·T = {bt_product:.1f}, below {bt_limit:.0f} for {how} filtering: the band filter's own "
             "ringing lengthens the measured decay",
             "use the octave band or an impulse-response method with time-reversed filtering",
-            nominal_hz, "ISO 3382-2 (from memory): B·T > 16, or > 4 with time-reversed filtering"))
+            nominal_hz, "ISO 3382-2: B·T > 16, or > 4 with time-reversed filtering", unconfirmed=True))   # from memory
     return BandDecay(nominal_hz, fraction, lines.get("EDT"), t20, t30, dynamic_range_db, curvature, bt_product,
                      bt_limit, tuple(findings), curve)
 
@@ -292,7 +293,7 @@ def _no_decay_finding(source_name: str, nominal_hz: float, peak_to_noise_db: flo
                    f"{source_name}, {nominal_hz:g} Hz: no decay of 10 dB or more above the noise{level}; "
                    "EDT, T20 and T30 not evaluated",
                    "raise the signal level or lower the background noise and measure again",
-                   nominal_hz, CLAUSE_RANGE)
+                   nominal_hz, CLAUSE_RANGE, unconfirmed=True)
 
 
 def analysis_bands(nominal_hz: Sequence[float] | None, *, fraction: Fraction, sample_rate_hz: float,
@@ -357,7 +358,8 @@ def _arithmetic_band(decays: list[BandDecay], *, source_name: str) -> BandDecay:
             extra.append(Finding("decays_excluded", "info",
                                  f"{source_name}, {nominal_hz:g} Hz: {parameter} is the mean of {len(valid)} of "
                                  f"{len(decays)} decays; the others had no valid {parameter}",
-                                 "", nominal_hz, "ISO 3382-2 (from memory): arithmetic mean of the decays"))
+                                 "", nominal_hz, "ISO 3382-2: arithmetic mean of the decays",   # from memory
+                                 unconfirmed=True))
     ranges = [d.dynamic_range_db for d in decays if d.dynamic_range_db is not None]
     return _band_result(nominal_hz, fraction, lines, min(ranges) if ranges else None, max(d.bt_limit for d in decays),
                         None, source_name=source_name, extra=tuple(extra))
@@ -387,6 +389,7 @@ def _ensemble_band(decays: list[BandDecay], *, source_name: str) -> BandDecay:
         excluded = Finding("decays_excluded", "info",
                            f"{source_name}, {nominal_hz:g} Hz: {len(decays) - len(curves)} of {len(decays)} decays "
                            "had no usable decay curve and were left out of the ensemble average",
-                           "", nominal_hz, "ISO 3382-2 (from memory): ensemble average of the decays")
+                           "", nominal_hz, "ISO 3382-2: ensemble average of the decays",   # from memory
+                           unconfirmed=True)
         return dataclasses.replace(band, findings=(excluded, *band.findings))
     return band

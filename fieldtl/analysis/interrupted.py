@@ -132,7 +132,7 @@ def reverberation_from_interrupted_noise(
                           f"{source_name}: no switch-off found (at least {MIN_ON_S:g} s of noise standing "
                           f"{MIN_LEVEL_STEP_DB:.0f} dB above the quiet parts, then {MIN_OFF_S:g} s of decay)",
                           "record the noise, switch it off abruptly and keep recording through the decay",
-                          clause="ISO 3382-2 (from memory): interrupted noise method")
+                          clause="ISO 3382-2: interrupted noise method", unconfirmed=True)   # from memory
         bands = tuple(band_without_decay(f, fraction, None, (), bt_limit=BT_MIN_FORWARD) for f in bands_hz)
         return DecayAnalysis(source_name, "interrupted_noise", "ensemble", 0, bands, (finding,))
     bands = tuple(_band_decay(samples, f, interruptions, fraction=fraction, sample_rate_hz=sample_rate_hz,
@@ -180,7 +180,7 @@ def _short_off_finding(source_name: str, nominal_hz: float) -> Finding:
                    f"{source_name}, {nominal_hz:g} Hz: the silences after the switch-offs are too short to hold a "
                    "decay in this band; T20 and T30 not evaluated",
                    "keep recording for at least the reverberation time after each switch-off", nominal_hz,
-                   CLAUSE_RANGE)
+                   CLAUSE_RANGE, unconfirmed=True)
 
 
 def _moving_mean(values: np.ndarray, window: int) -> np.ndarray:

@@ -34,7 +34,7 @@ HF_START_HZ = 1000.0                 # high-frequency shortfall: bands from 1 kH
 HF_REFERENCE_HZ = (200.0, 800.0)     # mid-frequency bands whose median gap is the baseline (our choice)
 HF_SHORTFALL_DB = 5.0                # mean extra gap above 1 kHz over the baseline (our choice)
 HF_BAND_EXCESS_DB = 3.0              # ... with at least 3/4 of those bands this far over it: broadband (our choice)
-_CLAUSE = "common practice (facts sheet 10, 11)"
+_CLAUSE = "common practice"   # facts sheet 10, 11
 
 
 @dataclass(frozen=True, slots=True)
@@ -145,7 +145,7 @@ def _dip_findings(prediction: Prediction, measured: BandSpectrum) -> tuple[Findi
                                  f"{band_hz:g} Hz: a {depth_db:.1f} dB dip lies within 1/3 octave of the predicted "
                                  f"{what} ({feature_hz:.0f} Hz) and is explained by it",
                                  "None: a property of the construction, not of the measurement.",
-                                 band_hz=band_hz, clause="panel physics (facts sheet 10)"))
+                                 band_hz=band_hz, clause="panel physics"))   # facts sheet 10
     return tuple(found)
 
 

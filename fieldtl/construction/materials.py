@@ -1,7 +1,8 @@
 """Building materials for the panel model: density, Young's modulus, Poisson ratio, loss factor.
 
-Every row carries where its numbers come from. Rows marked "facts sheet 10" take density, E and
-ν from the table in section 10 of the project's facts sheet (/work/shared/reference/standards.md),
+Every row carries a short ``source`` for its reader ("typical values" for the built-in rows); where
+the numbers come from is in the comment beside each row. Rows marked "facts sheet 10" take density,
+E and ν from the table in section 10 of the project's facts sheet (/work/shared/reference/standards.md),
 itself marked "typical values, from memory"; everything else is a typical value from memory.
 Real products vary by ±20 % or more: a manufacturer's data sheet beats this table, and a
 construction file can add its own rows ([[material]] tables, see :mod:`fieldtl.construction.spec`).
@@ -49,39 +50,38 @@ class Material:
                         low_open=True, high_open=True)
 
 
-_MEMORY = "typical value (from memory)"
-_FACTS = "rho, E, nu: facts sheet 10 table (typical values, from memory); loss factor: typical value (from memory)"
+# Every built-in row's numbers are typical values, from memory; the rows marked "facts sheet 10" beside
+# them take rho, E and nu from that table (itself typical values, from memory). A row's ``source`` is
+# written for its reader, without these notes.
+_TYPICAL = "typical values"
 
 
 def _row(name: str, density_kg_m3: float, youngs_modulus_gpa: float, poisson_ratio: float, loss_factor: float,
-         source: str = _MEMORY) -> tuple[str, Material]:
+         source: str = _TYPICAL) -> tuple[str, Material]:
     return name, Material(name, density_kg_m3, youngs_modulus_gpa * 1e9, poisson_ratio, loss_factor, source)
 
 
 # name, density kg/m3, E GPa, Poisson ratio, internal loss factor, source
 MATERIALS: Mapping[str, Material] = MappingProxyType(dict((
-    _row("concrete_dense", 2300, 30.0, 0.20, 0.006, _FACTS),
+    _row("concrete_dense", 2300, 30.0, 0.20, 0.006),              # rho, E, nu: facts sheet 10 table
     _row("concrete_block_dense", 2000, 20.0, 0.20, 0.010),        # dense aggregate blocks, mortar joints
     _row("concrete_block_lightweight", 1400, 8.0, 0.20, 0.010),   # lightweight aggregate blocks
     _row("aircrete", 600, 1.8, 0.20, 0.010),                      # autoclaved aerated concrete blocks
-    _row("brick_clay_solid", 1900, 16.0, 0.15, 0.010, _FACTS),
+    _row("brick_clay_solid", 1900, 16.0, 0.15, 0.010),            # rho, E, nu: facts sheet 10 table
     _row("calcium_silicate", 1900, 13.0, 0.20, 0.010),
     _row("screed_cement", 2000, 20.0, 0.20, 0.010),
     _row("render_cement", 1900, 10.0, 0.20, 0.010),               # sand/cement render
     _row("plaster_gypsum", 1000, 5.0, 0.25, 0.010),               # wet gypsum plaster
-    _row("gypsum_board", 720, 2.5, 0.30, 0.015, "rho, E, nu: facts sheet 10 table gives 750 kg/m3, 2.5 GPa, 0.3; "
-         "720 kg/m3 (9 kg/m2 at 12.5 mm) typical value (from memory); loss factor typical value (from memory)"),
+    # E, nu: facts sheet 10 table (which gives 750 kg/m3); 720 kg/m3 is 9 kg/m2 at 12.5 mm, typical (from memory)
+    _row("gypsum_board", 720, 2.5, 0.30, 0.015),
     _row("gypsum_board_dense", 860, 3.0, 0.30, 0.015),            # "sound" boards, about 13 kg/m2 at 15 mm
     _row("plywood", 600, 8.0, 0.30, 0.020),                       # orthotropic: one effective E
     _row("osb", 650, 5.0, 0.30, 0.015),
-    _row("chipboard", 700, 3.5, 0.30, 0.015, _FACTS),
+    _row("chipboard", 700, 3.5, 0.30, 0.015),                     # rho, E, nu: facts sheet 10 table
     _row("timber_floorboard", 500, 10.0, 0.30, 0.020),            # softwood along the grain; jointed boards
-    _row("glass_float", 2500, 70.0, 0.22, 0.030, "rho, E, nu: facts sheet 10 table (typical values, from memory); "
-         "total loss factor of a pane in glazing gaskets, typical value (from memory)"),
-    _row("steel", 7850, 210.0, 0.30, 0.001, "rho, E, nu: facts sheet 10 table (typical values, from memory); "
-         "loss factor of a fixed sheet, typical value (from memory)"),
-    _row("aluminium", 2700, 70.0, 0.33, 0.001, "rho, E, nu: facts sheet 10 table (typical values, from memory); "
-         "loss factor of a fixed sheet, typical value (from memory)"),
+    _row("glass_float", 2500, 70.0, 0.22, 0.030),   # rho, E, nu: facts sheet 10 table; loss factor: a pane in gaskets
+    _row("steel", 7850, 210.0, 0.30, 0.001),        # rho, E, nu: facts sheet 10 table; loss factor: a fixed sheet
+    _row("aluminium", 2700, 70.0, 0.33, 0.001),     # rho, E, nu: facts sheet 10 table; loss factor: a fixed sheet
 )))
 
 

@@ -38,6 +38,7 @@ from numpy.typing import ArrayLike
 from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, BandSpectrum
 from fieldtl.construction.materials import SPEED_OF_SOUND_M_S
 from fieldtl.construction.spec import Construction, Leaf
+from fieldtl.findings import unconfirmed
 from fieldtl.rating.iso717 import Rating, rate_iso717_1
 
 AIR_DENSITY_KG_M3 = 1.21         # air at about 20 °C (common textbook value, from memory)
@@ -168,7 +169,8 @@ def predict(construction: Construction, *, edge_losses: bool = True) -> Predicti
         notes.append("bonded layers (and both leaves below f0): masses and bending stiffnesses added, "
                      "loss factor mass-weighted")
     if edge_losses:
-        notes.append("loss factor includes the edge-loss term m''/(485 sqrt f) of ISO 12354-1 Annex C (from memory)")
+        # ISO 12354-1 Annex C's edge-loss term from memory
+        notes.append(unconfirmed("loss factor includes the edge-loss term m''/(485 sqrt f) of ISO 12354-1 Annex C"))
     f0_hz = fl_hz = None
     upper_bound = False
     if construction.cavity is None:

@@ -15,7 +15,7 @@ import numpy as np
 
 from fieldtl.bands import BandSpectrum
 from fieldtl.errors import InputError
-from fieldtl.findings import Finding
+from fieldtl.findings import Finding, unconfirmed
 from fieldtl.insulation.background import BACKGROUND_RULE
 from fieldtl.insulation.common import (
     REFERENCE_AREA_M2,
@@ -40,10 +40,10 @@ AreaRule = Literal["smaller", "receiving", "source", "off"]
 AREA_VOLUME_DIVISOR_M = 7.5  # S >= V / 7.5 for small or offset separating elements (facts sheet 1.10, from memory)
 
 _COMBINATION_RULES = {
-    "energy": "loudspeaker positions combined on an energy basis, D = -10 lg((1/m) Σ 10^(-Dj/10)) "
-              "(ISO 16283-1; formula from memory)",
+    "energy": unconfirmed("loudspeaker positions combined on an energy basis, "   # formula from memory
+                          "D = -10 lg((1/m) Σ 10^(-Dj/10)) (ISO 16283-1)"),
     "arithmetic": "loudspeaker positions combined as the arithmetic mean of Dj (ISO 140-4 practice)",
-    "simultaneous": "loudspeakers operating simultaneously: D = L1 - L2 (ISO 16283-1, from memory)",
+    "simultaneous": unconfirmed("loudspeakers operating simultaneously: D = L1 - L2 (ISO 16283-1)"),  # from memory
 }
 
 
@@ -164,7 +164,8 @@ def separating_area_m2(rooms: Rooms, *, rule: AreaRule = "smaller") -> tuple[flo
     Without a common element (``common_area_m2`` None) R' is not defined and S is None.
     """
     if rooms.common_area_m2 is None:
-        return None, "no common separating element: R' not computed, D, Dn and DnT only (ISO 16283-1, from memory)"
+        # ISO 16283-1 (from memory)
+        return None, unconfirmed("no common separating element: R' not computed, D, Dn and DnT only (ISO 16283-1)")
     common_m2 = number(rooms.common_area_m2, "common area of the separating element", low=AREA_M2[0],
                        high=AREA_M2[1], unit=" m2")
     volumes_m3 = {"smaller": min(rooms.source_volume_m3, rooms.receiving_volume_m3),
@@ -175,9 +176,9 @@ def separating_area_m2(rooms: Rooms, *, rule: AreaRule = "smaller") -> tuple[flo
         raise InputError(f"area rule must be 'smaller', 'receiving', 'source' or 'off', got {rule!r}")
     floor_m2 = volumes_m3[rule] / AREA_VOLUME_DIVISOR_M
     if floor_m2 > common_m2:
-        return floor_m2, (f"S = {floor_m2:.2f} m2 = V/7.5 with V the {rule} room volume "
-                          f"{volumes_m3[rule]:g} m3, larger than the common area {common_m2:.2f} m2 "
-                          "(ISO 16283-1 small-element rule, from memory)")
+        return floor_m2, unconfirmed(f"S = {floor_m2:.2f} m2 = V/7.5 with V the {rule} room volume "  # from memory
+                                     f"{volumes_m3[rule]:g} m3, larger than the common area {common_m2:.2f} m2 "
+                                     "(ISO 16283-1 small-element rule)")
     return common_m2, f"S = {common_m2:.2f} m2, the common area (not below V/7.5 of the {rule} room)"
 
 
@@ -228,7 +229,8 @@ def airborne_insulation(measurement: AirborneMeasurement, rooms: Rooms, *,
     r = None if s_m2 is None else to_spectrum(bands, d + 10.0 * np.log10(s_m2 / a_m2), "R'")  # R' = D + 10 lg(S/A)
     rules = (*ignored_bands_rule(first),
              "energy average of microphone positions per loudspeaker position (ISO 16283-1)",
-             _COMBINATION_RULES[source_combination], BACKGROUND_RULE, *source.rules, *receiving.rules,
+             _COMBINATION_RULES[source_combination],
+             unconfirmed(BACKGROUND_RULE), *source.rules, *receiving.rules,
              t_rule, *low_t.rules, f"A = 0.16 V/T with the receiving-room volume {receiving_m3:g} m3; "
              f"A0 = {a0_m2:g} m2, T0 = {t0_s:g} s", s_rule)
     spread = BandSpread(to_spectrum(bands, source.reading_std_db, "L1 std"),

@@ -17,9 +17,11 @@ LIMIT_MARGIN_DB = 6.0  # margin <= 6 dB: fixed correction, band marked as a limi
 LIMIT_CORRECTION_DB = 1.3  # -10 lg(1 - 10^-0.6) = 1.256, rounded by the standard to 1.3 (facts sheet 1.8)
 EDGE_TOLERANCE_DB = 1e-9  # a margin within this of 6 or 10 dB counts as exactly 6 or 10 (float noise only)
 
+# Where it is used, the rule is marked unconfirmed (fieldtl.findings.unconfirmed): that 10.0 dB itself
+# counts as "no correction" is from memory.
 BACKGROUND_RULE = (
     "background correction per band (ISO 16283-1/-2): margin >= 10 dB no correction (10.0 dB itself "
-    "is treated as 'no correction', from memory); 6 dB < margin < 10 dB energy subtraction "
+    "is treated as 'no correction'); 6 dB < margin < 10 dB energy subtraction "
     "10 lg(10^(Lsb/10) - 10^(Lb/10)); margin <= 6 dB subtract 1.3 dB and mark the band as a "
     "measurement limit")
 

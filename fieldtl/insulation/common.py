@@ -19,6 +19,7 @@ import numpy as np
 
 from fieldtl.bands import THIRD_OCTAVES_50_5000_HZ, THIRD_OCTAVES_100_3150_HZ, BandSpectrum
 from fieldtl.errors import InputError
+from fieldtl.findings import unconfirmed
 from fieldtl.units import db_to_energy, energy_to_db
 
 FIELD_BANDS_HZ = THIRD_OCTAVES_50_5000_HZ  # ISO 16283-1/-2: 50-5000 Hz with the optional bands (facts sheet 1.2)
@@ -135,8 +136,8 @@ def average_reverberation_time(decays: Sequence[BandSpectrum], nominal_hz: Seque
         squares = np.nansum((values_s - mean_s) ** 2, axis=0)
         std_s = np.where(per_band >= 2, np.sqrt(squares / (per_band - 1)), np.nan)
     partial = "" if valid.all() else "; a band where a decay gave no valid T uses the remaining decays"
-    return (mean_s, std_s, count,
-            f"T per band: arithmetic mean of {count} decay(s) (ISO 16283-1/-2, from memory){partial}")
+    return (mean_s, std_s, count,   # the arithmetic mean of T: ISO 16283-1/-2, from memory
+            unconfirmed(f"T per band: arithmetic mean of {count} decay(s) (ISO 16283-1/-2){partial}"))
 
 
 def to_spectrum(nominal_hz: Sequence[float], values: np.ndarray, quantity: str,

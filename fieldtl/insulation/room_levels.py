@@ -65,7 +65,7 @@ def room_levels(readings: Sequence[Sequence[BandSpectrum]], corners: Sequence[Se
             f"No background noise levels were given for the {room}; levels are not corrected and "
             "bands too close to the background cannot be detected.",
             "Measure the background noise in the receiving room with the source off.",
-            clause="ISO 16283-1/-2 background correction (facts sheet 1.8)"))
+            clause="ISO 16283-1/-2 background correction"))   # facts sheet 1.8
     if background:
         background_db = energetic_mean_db(stack_db(background, nominal_hz, what=f"{room} background"))
         corrected = background_corrected_db(levels, background_db)

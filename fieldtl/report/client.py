@@ -1,42 +1,21 @@
-"""Words for clients: internal notes taken out of texts, and the verdict's number formed in words.
+"""Words for clients: the one explanation of the unconfirmed mark, and the verdict's number formed in words.
 
-Rules and clauses in the code carry notes for developers ("from memory", facts-sheet numbers,
-"verified"); a client's report shows none of them. A text that carried "from memory" is marked
-instead, and the report says once what the mark means (:data:`TOOL_DEFAULT`).
+The core writes texts without internal notes and marks a text whose value is the tool's default, not
+confirmed from the standard's text, with :data:`UNCONFIRMED_MARK` (:func:`fieldtl.findings.unconfirmed`);
+a client's report says once what the mark means (:data:`EXPLANATION`).
 """
 
 from __future__ import annotations
 
 import dataclasses
-import re
 
 from fieldtl.assess import Assessment
+from fieldtl.findings import UNCONFIRMED_MARK
 
 TOOL_DEFAULT = "the tool's default, check against your copy of the standard"
-UNCONFIRMED_MARK = "†"
 EXPLANATION = f"{UNCONFIRMED_MARK} Where this mark stands, the value used is {TOOL_DEFAULT}."
 
-_FROM_MEMORY = re.compile(r"\s*[;,]?\s*(?:formula\s+|values?\s+)?from memory", re.IGNORECASE)
-_FACTS_SHEET = re.compile(r"\s*[;,]?\s*(?:the project's\s+)?facts sheet"
-                          r"(?:\s+[0-9][0-9.]*(?:\s*(?:,|and)\s*[0-9][0-9.]*)*)?(?:\s+table)?", re.IGNORECASE)
-_VERIFIED = re.compile(r"\s*\(verified\)", re.IGNORECASE)
-
-
-def client_text(text: str) -> tuple[str, bool]:
-    """``text`` without internal notes, and whether it held a value not confirmed by the standard's text."""
-    unconfirmed = "from memory" in text.lower()
-    cleaned = _VERIFIED.sub("", _FACTS_SHEET.sub("", _FROM_MEMORY.sub("", text)))
-    cleaned = re.sub(r"\(\s*[;,]?\s*\)", "", cleaned)          # brackets left empty
-    cleaned = re.sub(r"\(\s*[;,]\s*", "(", cleaned)
-    cleaned = re.sub(r"\s*[;,]\s*\)", ")", cleaned)
-    cleaned = re.sub(r"\s+([:;,])", r"\1", re.sub(r"\s{2,}", " ", cleaned)).strip().rstrip(":;,")
-    return cleaned, unconfirmed
-
-
-def marked(text: str) -> str:
-    """``text`` for a client: internal notes out, and :data:`UNCONFIRMED_MARK` where a value is not confirmed."""
-    cleaned, unconfirmed = client_text(text)
-    return f"{cleaned} {UNCONFIRMED_MARK}" if unconfirmed else cleaned
+__all__ = ["EXPLANATION", "TOOL_DEFAULT", "UNCONFIRMED_MARK", "client_assessment", "compared_value"]
 
 
 def compared_value(assessment: Assessment) -> str:
@@ -58,19 +37,14 @@ def compared_value(assessment: Assessment) -> str:
 
 
 def client_assessment(assessment: Assessment) -> Assessment:
-    """The assessment as clients may read it: rules, verdict statement, uncertainty note and findings
-    without internal notes; if any value is marked unconfirmed, the rules end with :data:`EXPLANATION`
-    (so every output says it once). Applying it twice changes nothing more."""
-    rules = [marked(rule) for rule in assessment.rules_applied if rule != EXPLANATION]
-    findings = tuple(dataclasses.replace(f, message=marked(f.message), action=marked(f.action),
-                                         clause=client_text(f.clause)[0]) for f in assessment.findings)
+    """The assessment as clients may read it: if any text (rule, finding, verdict statement, uncertainty
+    note) carries :data:`UNCONFIRMED_MARK`, the rules end with :data:`EXPLANATION` (so every output says
+    it once). Applying it twice changes nothing more."""
     verdict = assessment.verdict
-    if verdict is not None:
-        verdict = dataclasses.replace(verdict, statement=marked(verdict.statement),
-                                      uncertainty_note=marked(verdict.uncertainty_note))
-    texts = [*rules, *(t for f in findings for t in (f.message, f.action)),
-             *(() if verdict is None else (verdict.statement,)), marked(assessment.uncertainty_note)]
+    texts = [*assessment.rules_applied, *(t for f in assessment.findings for t in (f.message, f.action)),
+             *(() if verdict is None else (verdict.statement, verdict.uncertainty_note)),
+             assessment.uncertainty_note]
+    rules = [rule for rule in assessment.rules_applied if rule != EXPLANATION]
     if any(t.endswith(UNCONFIRMED_MARK) for t in texts):
         rules.append(EXPLANATION)
-    return dataclasses.replace(assessment, rules_applied=tuple(rules), findings=findings, verdict=verdict,
-                               uncertainty_note=marked(assessment.uncertainty_note))
+    return dataclasses.replace(assessment, rules_applied=tuple(rules))

@@ -3,9 +3,9 @@
 Page 1: the test, the verdict with the value it compares and its uncertainty, the single numbers
 and the cautions. Then the chart, the per-band table, the findings, the construction check, the
 test details and the method (standards, clauses and rules applied). The cautions are repeated in
-small type in every page footer. Internal notes of the code ("from memory", facts-sheet numbers)
-never reach the page: texts pass through :func:`fieldtl.report.client.marked`, and the method
-section says once what the mark of an unconfirmed value means.
+small type in every page footer. The core's texts carry no internal notes; a value the tool
+assumed is marked (:func:`fieldtl.findings.unconfirmed`), and the method section says once what
+the mark means (:func:`fieldtl.report.client.client_assessment`).
 
 Every string reaches the page as plain text (:mod:`fieldtl.report.pdf_page`). The sections are
 drawn by :mod:`~fieldtl.report.pdf_front` (page 1), :mod:`~fieldtl.report.pdf_tables`,

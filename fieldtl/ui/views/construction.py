@@ -5,7 +5,7 @@ import streamlit as st
 
 from fieldtl.construction.predict import predict
 from fieldtl.errors import FieldTLError
-from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK, marked
+from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK
 from fieldtl.store import declared_construction
 from fieldtl.ui import cached, chart, common, gate, progress
 
@@ -37,7 +37,7 @@ with common.fenced():
              f"{prediction.surface_mass_kg_m2:.0f} kg/m², critical frequency {prediction.critical_frequency_hz:.0f} Hz"
              + (f", mass-air-mass resonance {prediction.mass_air_mass_resonance_hz:.0f} Hz"
                 if prediction.mass_air_mass_resonance_hz else "") + ".")
-    st.caption(common.md(marked(prediction.method)))
+    st.caption(common.md(prediction.method))
     check = None
     progress.wait_until_measured(test.id)    # a bar while the background measurer is on this test's takes
     try:
@@ -52,16 +52,14 @@ with common.fenced():
                                    "R' measured": _one_decimal(check.measured_db),
                                    "gap": _one_decimal(check.gap_db)}), hide_index=True)
         for finding in check.findings:
-            st.warning(f"**Check**: {common.md(marked(finding.message))} *What to do:* "
-                       f"{common.md(marked(finding.action))}")
+            st.warning(f"**Check**: {common.md(finding.message)} *What to do:* {common.md(finding.action)}")
     else:
         st.caption(f"Per band, {len(prediction.r_db.nominal_hz)} bands (the table scrolls down):")
         st.dataframe(pd.DataFrame({"Hz": [f"{f:g}" for f in prediction.r_db.nominal_hz],
                                    "R predicted": _one_decimal(prediction.r_db)}), hide_index=True)
     with st.expander("What the prediction leaves out"):
-        notes = [marked(note) for note in prediction.notes]
-        for note in notes:
+        for note in prediction.notes:
             st.write(f"- {common.md(note)}")
-        if any(note.endswith(UNCONFIRMED_MARK) for note in notes):
+        if any(note.endswith(UNCONFIRMED_MARK) for note in prediction.notes):
             st.write(common.md(EXPLANATION))
     common.cautions()

@@ -6,7 +6,7 @@ import streamlit as st
 
 from fieldtl.construction import MATERIALS
 from fieldtl.errors import FieldTLError
-from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK, marked
+from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK
 from fieldtl.store import CONSTRUCTION_SETTING, TestSetup, declared_construction
 from fieldtl.ui import buildup, cached, common, gate, state, versions
 from fieldtl.uncertainty import EXAMPLE_REQUIREMENTS, SITUATIONS
@@ -89,10 +89,9 @@ with common.fenced():
             st.page_link("views/takes.py", label="Go to Takes", icon="🎙️")
 
     with st.expander("Example requirements (examples only: your local code decides)"):
-        labels = {text: marked(label) for label, text in EXAMPLE_REQUIREMENTS.items()}
-        for text, label in labels.items():
+        for label, text in EXAMPLE_REQUIREMENTS.items():
             st.write(f"`{text}` — {common.md(label)}")
-        if any(label.endswith(UNCONFIRMED_MARK) for label in labels.values()):
+        if any(label.endswith(UNCONFIRMED_MARK) for label in EXAMPLE_REQUIREMENTS):
             st.caption(common.md(EXPLANATION))
     with st.expander("Materials known to the construction check"):
         st.write(", ".join(buildup.material_words(name) for name in sorted(MATERIALS)))
