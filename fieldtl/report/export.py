@@ -55,7 +55,7 @@ def _rating_json(rating: Rating, u_db: float | None) -> Any:
 
 def assessment_to_json(assessment: Assessment) -> dict[str, Any]:
     """The JSON document written by ``fieldtl assess --json``."""
-    assessment = client_assessment(assessment)     # no internal notes in a client's file
+    assessment = client_assessment(assessment)     # the unconfirmed mark explained once
     columns = band_columns(assessment)
     verdict = assessment.verdict
     return {

@@ -59,7 +59,7 @@ class ReportDetails:
 def assessment_to_pdf(assessment: Assessment, *, details: ReportDetails | None = None) -> bytes:
     """The PDF report of one test, as bytes. Does not compute anything and does not write files."""
     details = details or ReportDetails()
-    assessment = client_assessment(assessment)     # no internal notes; unconfirmed values marked
+    assessment = client_assessment(assessment)     # the unconfirmed mark explained once (method section)
     pdf = ReportPdf(assessment.cautions)
     pdf.set_title(safe(assessment.title))
     pdf.set_creator(f"fieldtl {__version__}")
