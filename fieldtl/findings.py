@@ -43,4 +43,7 @@ class Finding:
     def as_json(self) -> dict[str, object]:
         """The dictionary written under "warnings" in every JSON output."""
         return {"code": self.code, "severity": self.severity, "band_hz": self.band_hz,
-                "message": self.message, "action": self.action}
+                "message": self.message, "action": self.action,
+                # the rule behind it, and whether that rule's value is the tool's default (not confirmed
+                # from the standard's text)
+                "clause": self.clause, "tool_default": self.unconfirmed}

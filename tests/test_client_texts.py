@@ -202,6 +202,17 @@ def test_client_assessment_adds_the_explanation_only_for_a_marked_text(raw_asses
         ("plain rule", EXPLANATION)
 
 
+def test_a_findings_json_names_its_rule_and_whether_the_value_is_the_tools_default(raw_assessments):
+    recalled = Finding("x", "warning", "seen", clause="ISO 16283-1 positions", unconfirmed=True)
+    confirmed = Finding("y", "warning", "seen", clause="ISO 16283-1 positions")
+    assert (recalled.as_json()["clause"], recalled.as_json()["tool_default"]) == ("ISO 16283-1 positions", True)
+    assert (confirmed.as_json()["clause"], confirmed.as_json()["tool_default"]) == ("ISO 16283-1 positions", False)
+    # in the demo: every warning names its rule, and the weak decay's range limit is the tool's default
+    demo = json.loads(json_text(assessment_to_json(raw_assessments["demo"])))["warnings"]
+    assert demo and all(w["clause"] and not INTERNAL.search(w["clause"]) for w in demo)
+    assert {w["tool_default"] for w in demo} == {True, False}
+
+
 def test_prediction_notes_and_example_requirements_are_clean_and_marked():
     prediction = predict(construction_from_layers(["concrete_dense:200"]))
     texts = [prediction.method, *prediction.notes, *(material.source for material in MATERIALS.values())]
