@@ -10,6 +10,9 @@ as the analysis import the Takes page begins, then ends before the next action r
 it). ``FIELDTL_NO_WARMUP=1 python benchmarks/app.py`` measures the same without the warm-up child. Each figure is the wall time from the action (page opened, button clicked, file chosen) until
 what it should show is visible:
 
+- server start: from ``fieldtl app`` to the server's answer to its health check (not a page; work
+  moved before the first page shows here);
+
 - first page: the Projects page after the server answers its health check;
 - demo test: the Takes page with every take's card (each drawn with what it showed, once measured);
 - results: the verdict; later pages: Takes and Results again, the Report page opened by address, and
@@ -57,11 +60,12 @@ def timed(action: Callable[[], object], until: Callable[[], object]) -> float:
 def serve(data_dir: Path):
     port = free_port()
     env = {k: v for k, v in os.environ.items() if k not in ("FIELDTL_ACCESS_CODE", "FIELDTL_NO_DEMO")}
+    start = time.perf_counter()
     server = start_server([sys.executable, "-m", "fieldtl.cli", "app", "--port", str(port), "--data-dir",
                            str(data_dir)], cwd=ROOT, env=env)
     url = f"http://127.0.0.1:{port}"
     wait_until_healthy(url, timeout_s=120)
-    return server, url
+    return server, url, time.perf_counter() - start
 
 
 def new_recording() -> bytes:
@@ -148,7 +152,7 @@ def main() -> None:
                                                    ("first start, paced:", "paced", False, PAUSE_S),
                                                    ("after a restart:", "store", True, 0.0),
                                                    ("after a restart, paced:", "store", True, PAUSE_S)):
-                server, url = serve(Path(folder) / store)
+                server, url, figures[f"{prefix} server start"] = serve(Path(folder) / store)
                 try:
                     page = browser.new_page(viewport=PHONE)
                     walk(page, url, figures, prefix, upload=upload, pause_s=pause_s)

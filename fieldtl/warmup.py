@@ -224,6 +224,11 @@ class Watch:
         with self._changed:
             return test_id in self._ended
 
+    def measured_all(self) -> bool:
+        """The child went through every test it listed."""
+        with self._changed:
+            return self._tests is not None and self._tests <= self._ended
+
     def finished(self) -> bool:
         """The child has ended, been reaped, and what waited for it has run."""
         with self._changed:

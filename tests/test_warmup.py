@@ -50,7 +50,8 @@ try:
 except StoreError:
     tests = []
 print(json.dumps({"imported": imported, "finished": watch.finished(), "children_left": children_left,
-                  "measured": [watch.measured(t) for t in tests], "env_left": warmup.ENV_VAR in os.environ}))
+                  "measured": [watch.measured(t) for t in tests],
+                  "measured_all": watch.measured_all(), "env_left": warmup.ENV_VAR in os.environ}))
 """
 
 
@@ -92,7 +93,7 @@ def test_the_warm_up_imports_the_demo_once_and_leaves_every_take_measured(tmp_pa
     seen, errors = launch(database, FIELDTL_NO_DEMO=None)
     assert errors == ""
     assert seen == {"imported": True, "finished": True, "children_left": False, "measured": [True],
-                    "env_left": False}
+                    "measured_all": True, "env_left": False}
     store = Store.open(database)
     try:
         warmup.import_demo(store)                      # what the server does after the child's import: nothing
@@ -156,9 +157,10 @@ def test_the_server_follows_the_childs_reports():
     say("end 5\n")
     wait_for(lambda: watch.measured(5))
     assert watch.pending(5) is None and watch.pending(6) == (0, 0) and ran == []
+    assert not watch.measured_all()
     os.close(write_fd)                                  # the child ends (or dies) before test 6
     wait_for(watch.finished)
-    assert watch.pending(6) is None and not watch.measured(6)
+    assert watch.pending(6) is None and not watch.measured(6) and not watch.measured_all()
     assert ran == ["measurer started"]
     watch.when_finished(lambda: ran.append("later"))   # after the end: at once
     assert ran == ["measurer started", "later"]
@@ -179,3 +181,31 @@ def wait_for(condition, timeout_s: float = 10.0) -> None:
     while not condition():
         assert time.monotonic() < deadline, "timed out"
         time.sleep(0.01)
+
+
+@pytest.mark.slow
+def test_the_app_imports_and_measures_itself_when_the_warm_up_died_first(tmp_path, monkeypatch):
+    """The child gone before its first report (a pipe closed at once): the app's own path takes over."""
+    import streamlit as st
+
+    from fieldtl.ui import cached
+
+    read_fd, write_fd = os.pipe()
+    os.close(write_fd)
+    monkeypatch.setenv(warmup.ENV_VAR, f"{os.getpid()}:{read_fd}")     # not our child: nothing to reap
+    monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "app"))
+    monkeypatch.delenv("FIELDTL_NO_DEMO", raising=False)
+    warmup.server_watch.cache_clear()
+    st.cache_resource.clear()
+    try:
+        store = cached.store()
+        assert [p.name for p in store.list_projects()] == [warmup.DEMO_PROJECT]
+        (test,) = store.list_tests(store.list_projects()[0].id)
+        wait_for(lambda: cached.measurer() is not None)
+        wait_for(lambda: cached.measurer().idle(), timeout_s=300)
+        files = analysed_files(monkeypatch)
+        measured = measure_test_takes(store, test.id)
+        assert files == [] and all(o.summary is not None for o in measured.outcomes.values())
+    finally:
+        st.cache_resource.clear()
+        warmup.server_watch.cache_clear()

@@ -57,6 +57,8 @@ class _Opened:
             watch.when_finished(self._start)
 
     def _start(self) -> None:
+        if self.watch is not None and self.watch.measured_all():
+            return          # every test's rows are in the store: pages read them (a new take is measured there)
         with self._lock:
             if not self._stopped:
                 self._measurer = BackgroundMeasurer(self.store, every_test=True)
@@ -83,8 +85,8 @@ def _opened() -> _Opened:
 
     `fieldtl app` starts a warm-up child (fieldtl.warmup) that imports the demo on a first start and
     measures the takes while the server boots: the store is opened here once its import is done,
-    and this process's measurer starts when the child has ended (it then finds the rows, or
-    measures what is left)."""
+    and this process's measurer starts when the child has ended without going through every test
+    (it then finds the rows, or measures what is left)."""
     watch = None if login.server_configured() else warmup.server_watch()
     importing = watch is not None and not watch.wait_imported()
     handle = open_store()         # FIELDTL_STORE_URL's team server, else the SQLite store in the data folder
@@ -118,7 +120,8 @@ def server_store() -> Store:
 
 
 def measurer() -> BackgroundMeasurer | None:
-    """This process's background measurer; None while the warm-up child is still measuring."""
+    """This process's background measurer; None while the warm-up child is still measuring, and when
+    it has measured every test."""
     return _opened().measurer()
 
 
