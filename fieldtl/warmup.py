@@ -36,7 +36,7 @@ from typing import TYPE_CHECKING
 if TYPE_CHECKING:
     from fieldtl.store import Store
 
-ENV_VAR = "FIELDTL_WARMUP"          # "<child pid>:<fd of the child's reports>", set by `fieldtl app` for the server
+ENV_VAR = "FIELDTL_WARMUP"          # "<child pid>:<fd of its reports>:<fd it waits on>", set by `fieldtl app`
 DEMO_SURVEY = Path(__file__).resolve().parents[1] / "sample_audio" / "survey.toml"
 DEMO_PROJECT = "Invented demo: Brackenfold House (a fictional building)"
 # What measuring imports (scipy.signal and the analysis, about 1 s of computing).
@@ -163,7 +163,7 @@ def start(database: Path) -> str | None:
     os.close(report_write)
     os.set_inheritable(life_write, True)        # held by the server until it exits; the child waits on it
     os.set_inheritable(report_read, True)
-    return f"{pid}:{report_read}"
+    return f"{pid}:{report_read}:{life_write}"
 
 
 def _child(database: Path, life_fd: int, report_fd: int) -> None:
@@ -279,12 +279,17 @@ class Watch:
 
 @functools.lru_cache(maxsize=1)
 def server_watch() -> Watch | None:
-    """The warm-up `fieldtl app` started for this server process (ENV_VAR), once; None if there is none."""
-    pid, _, fd = os.environ.pop(ENV_VAR, "").partition(":")
-    if not (pid.isdigit() and fd.isdigit()):
+    """The warm-up `fieldtl app` started for this server process (ENV_VAR), once; None if there is none.
+
+    Both of the server's pipe ends stop being inherited here, so no process the server starts could
+    keep the child waiting after the server has gone."""
+    fields = os.environ.pop(ENV_VAR, "").split(":")
+    if len(fields) != 3 or not all(f.isdigit() for f in fields):
         return None
+    pid, report_fd, life_fd = map(int, fields)
     try:
-        os.fstat(int(fd))
+        for fd in (report_fd, life_fd):
+            os.set_inheritable(fd, False)
     except OSError:
         return None
-    return Watch(int(pid), int(fd))
+    return Watch(pid, report_fd)

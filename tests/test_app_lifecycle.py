@@ -30,7 +30,7 @@ def launched(monkeypatch, tmp_path):
     monkeypatch.setattr(os, "execve", fake_execve)
     # No real warm-up child here: forking the test process would copy pytest (tests/test_warmup.py forks
     # from a launcher process, and the last tests below from `fieldtl app` itself).
-    monkeypatch.setattr(warmup, "start", lambda database: seen.setdefault("warm-up", database) and "4242:9")
+    monkeypatch.setattr(warmup, "start", lambda database: seen.setdefault("warm-up", database) and "4242:9:10")
 
     def launch(*argv):
         with pytest.raises(SystemExit):
@@ -72,7 +72,7 @@ def test_a_weak_chosen_code_is_refused_in_one_line(monkeypatch, tmp_path, capsys
 def test_the_server_is_handed_the_warm_up_of_its_sqlite_store(launched, monkeypatch, tmp_path):
     seen = launched()
     assert seen["warm-up"] == tmp_path / "store" / "fieldtl.sqlite3"
-    assert seen["env"][warmup.ENV_VAR] == "4242:9"
+    assert seen["env"][warmup.ENV_VAR] == "4242:9:10"
 
 
 def test_no_warm_up_for_a_team_server_or_when_turned_off(launched, monkeypatch):

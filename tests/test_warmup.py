@@ -170,9 +170,10 @@ def test_without_the_variable_there_is_no_watch(monkeypatch):
     monkeypatch.delenv(warmup.ENV_VAR, raising=False)
     warmup.server_watch.cache_clear()
     assert warmup.server_watch() is None
-    monkeypatch.setenv(warmup.ENV_VAR, "123:notanfd")
-    warmup.server_watch.cache_clear()
-    assert warmup.server_watch() is None
+    for value in ("123:notanfd:4", "123:4", "123:998:999"):          # 998, 999: no such open files here
+        monkeypatch.setenv(warmup.ENV_VAR, value)
+        warmup.server_watch.cache_clear()
+        assert warmup.server_watch() is None
     warmup.server_watch.cache_clear()
 
 
@@ -192,7 +193,10 @@ def test_the_app_imports_and_measures_itself_when_the_warm_up_died_first(tmp_pat
 
     read_fd, write_fd = os.pipe()
     os.close(write_fd)
-    monkeypatch.setenv(warmup.ENV_VAR, f"{os.getpid()}:{read_fd}")     # not our child: nothing to reap
+    life_read, life_write = os.pipe()
+    os.close(life_read)
+    # Not our child: nothing to reap.
+    monkeypatch.setenv(warmup.ENV_VAR, f"{os.getpid()}:{read_fd}:{life_write}")
     monkeypatch.setenv("FIELDTL_DATA_DIR", str(tmp_path / "app"))
     monkeypatch.delenv("FIELDTL_NO_DEMO", raising=False)
     warmup.server_watch.cache_clear()
@@ -209,3 +213,4 @@ def test_the_app_imports_and_measures_itself_when_the_warm_up_died_first(tmp_pat
     finally:
         st.cache_resource.clear()
         warmup.server_watch.cache_clear()
+        os.close(life_write)
