@@ -172,7 +172,10 @@ def test_phone_takes_listed_at_once_duplicates_refused_removal_and_results_reloa
             page.get_by_text(re.compile(r"Takes so far \(32 used")).wait_for(timeout=120_000)   # listed at once
             cards = page.locator("[class*='st-key-take-card-']")          # a read-only card per take
             cards.filter(has_text="hum.wav (source room, loudspeaker 1, microphone 6)").wait_for(timeout=120_000)
-            assert cards.count() == 32 and "used · channel 1 · uploaded" in cards.first.inner_text()
+            # the page is redrawn element by element: wait until the run has drawn every card
+            page.wait_for_function("""() => document.querySelectorAll("[class*='st-key-take-card-']").length === 32""",
+                                   timeout=60_000)
+            assert "used · channel 1 · uploaded" in cards.first.inner_text()
             page.locator("input[type=file]").set_input_files(str(REPO / "sample_audio" / "bg_p1.flac"))
             page.get_by_text(re.compile(r"bg_p1\.flac is already stored in this test as bg_p1\.flac "
                                         r"\(background noise in the receiving room, microphone 1\)")).wait_for(
