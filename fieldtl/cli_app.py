@@ -69,7 +69,7 @@ def run_app(args: argparse.Namespace) -> int:
         print(f"Access code for every browser: {code}  (spaces, dashes and capitals do not matter)")
     app_path = Path(__file__).resolve().parent / "ui" / "app.py"
     root = app_path.parents[2]          # the repository, whose .streamlit/config.toml sets upload limits
-    command = [sys.executable, "-m", "streamlit", "run", str(app_path), "--server.address", args.host,
+    command = [sys.executable, "-m", "fieldtl.ui.boot", "run", str(app_path), "--server.address", args.host,
                "--server.port", str(args.port), "--server.headless", "true", "--browser.gatherUsageStats", "false"]
     if args.cert is not None:
         command += ["--server.sslCertFile", str(args.cert.resolve()), "--server.sslKeyFile", str(args.key.resolve())]

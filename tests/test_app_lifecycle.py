@@ -44,7 +44,7 @@ def test_served_beyond_this_machine_a_grouped_code_is_made_and_handed_over(launc
     code = seen["env"][access.ENV_VAR]
     assert re.fullmatch(r"[2-9a-hjkmnp-z]{4}(-[2-9a-hjkmnp-z]{4}){2}", code)
     assert f"Access code for every browser: {code}" in capsys.readouterr().out
-    assert seen["argv"][:4] == [sys.executable, "-m", "streamlit", "run"]
+    assert seen["argv"][:4] == [sys.executable, "-m", "fieldtl.ui.boot", "run"]   # Streamlit's command line
 
 
 def test_on_this_machine_alone_no_code_is_asked_unless_one_is_chosen(launched, monkeypatch):
@@ -108,7 +108,7 @@ def test_the_warm_up_child_ends_with_the_server(tmp_path, stop_signal):
         deadline = time.monotonic() + 30.0
         while time.monotonic() < deadline:
             children = {pid: state for pid, state in group_members(server.pid).items() if pid != server.pid}
-            if children and b"streamlit" in Path(f"/proc/{server.pid}/cmdline").read_bytes():
+            if children and b"fieldtl.ui.boot" in Path(f"/proc/{server.pid}/cmdline").read_bytes():
                 break
             time.sleep(0.02)
         assert list(children.values()) in (["R"], ["S"], ["D"])   # the child, still at work, and only it
@@ -140,9 +140,10 @@ def test_a_signal_to_fieldtl_app_leaves_no_process_in_its_group(tmp_path, stop_s
                            str(tmp_path / "store")], cwd=REPO, env=env)
     try:
         wait_until_healthy(f"http://127.0.0.1:{port}")
-        # fieldtl became the server: the same process now runs streamlit (nothing else to orphan).
+        # fieldtl became the server: the same process now runs Streamlit through fieldtl.ui.boot
+        # (nothing else to orphan).
         if Path("/proc").is_dir():
-            assert b"streamlit" in Path(f"/proc/{server.pid}/cmdline").read_bytes()
+            assert b"fieldtl.ui.boot" in Path(f"/proc/{server.pid}/cmdline").read_bytes()
         os.kill(server.pid, stop_signal)                  # to fieldtl's process only, not the group
         server.wait(timeout=15)                           # reaps it; fails the test if it does not stop
         deadline = time.monotonic() + 5.0
