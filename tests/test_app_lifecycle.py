@@ -96,6 +96,14 @@ def group_members(group_id: int) -> dict[int, str]:
     return members
 
 
+def _assert_group_ends(leader_pid: int, *, within_s: float = 5.0) -> None:
+    """Every process of the server's group gone within ``within_s``."""
+    deadline = time.monotonic() + within_s
+    while group_alive(leader_pid) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert not group_alive(leader_pid)
+
+
 @pytest.mark.slow
 @pytest.mark.skipif(not Path("/proc/self/stat").is_file(), reason="reads processes from /proc (Linux)")
 @pytest.mark.parametrize("stop_signal", [signal.SIGTERM, signal.SIGINT, signal.SIGKILL])
@@ -121,10 +129,7 @@ def test_the_warm_up_child_ends_with_the_server(tmp_path, stop_signal):
         while group_members(server.pid).get(child, "Z") != "Z" and time.monotonic() < deadline:
             time.sleep(0.02)
         assert group_members(server.pid).get(child, "Z") == "Z"
-        deadline = time.monotonic() + 5.0
-        while group_alive(server.pid) and time.monotonic() < deadline:
-            time.sleep(0.05)
-        assert not group_alive(server.pid)
+        _assert_group_ends(server.pid)
     finally:
         if group_alive(server.pid):
             stop_server(server)
@@ -146,10 +151,7 @@ def test_a_signal_to_fieldtl_app_leaves_no_process_in_its_group(tmp_path, stop_s
             assert b"fieldtl.ui.boot" in Path(f"/proc/{server.pid}/cmdline").read_bytes()
         os.kill(server.pid, stop_signal)                  # to fieldtl's process only, not the group
         server.wait(timeout=15)                           # reaps it; fails the test if it does not stop
-        deadline = time.monotonic() + 5.0
-        while group_alive(server.pid) and time.monotonic() < deadline:
-            time.sleep(0.1)
-        assert not group_alive(server.pid)
+        _assert_group_ends(server.pid)
     finally:
         if group_alive(server.pid):
             stop_server(server)
