@@ -90,6 +90,11 @@ def test_a_reviewer_cannot_add_takes_through_the_app(team):
     assert [t.original_name for t in team["ann"].list_takes(team["test"].id)] == ["s1.wav"]
     _ok(at.run())                               # the reviewer reads the tester's take, still without a change area
     assert "s1.wav (source room" in _shown(at).replace("\\", "") and "Take to change" not in _shown(at)
+    _page(at, "setup.py")                       # the set-up is read, not saved, by a reviewer
+    assert "You review this project" in _shown(at)
+    assert [b.disabled for b in at.get("button") if b.label == "Save test"] == [True]
+    _page(tom, "setup.py")
+    assert [b.disabled for b in tom.get("button") if b.label == "Save test"] == [False]
 
 
 def test_an_account_without_a_role_cannot_open_the_project(team):

@@ -8,9 +8,8 @@ from fieldtl.construction import MATERIALS
 from fieldtl.errors import FieldTLError
 from fieldtl.report.client import EXPLANATION, UNCONFIRMED_MARK
 from fieldtl.store import CONSTRUCTION_SETTING, TestSetup, declared_construction
-from fieldtl.ui import buildup, cached, common, gate, state, versions
+from fieldtl.ui import buildup, cached, common, gate, login, state, versions
 from fieldtl.uncertainty import EXAMPLE_REQUIREMENTS, SITUATIONS
-
 
 
 def _optional(value: float) -> float | None:
@@ -37,7 +36,10 @@ with common.fenced():
     existing = next((t.setup for t in tests if t.id == chosen), None)
     drawn_version = next((versions.drawn(t) for t in tests if t.id == chosen), None)   # stale edits refused
     old = existing or TestSetup(title="", test_type="airborne", receiving_volume_m3=30.0)
-
+    reviewing = login.reviews_only(project.id)
+    if reviewing:
+        st.info("You review this project: you can read how its tests are set up, but its testers and "
+                "owners change them.")
 
     with st.form("test-setup"):
         title = common.text_field("Test name (rooms and element)", old.title, limit=common.NAME_CHARS,
@@ -62,7 +64,7 @@ with common.fenced():
         calibrator_db = st.number_input("Calibrator level, dB", min_value=60.0, max_value=150.0,
                                         value=float(old.calibrator_db), step=1.0)
         build_up = buildup.fields(old.settings.get(CONSTRUCTION_SETTING, ""))
-        saved = st.form_submit_button("Save test")
+        saved = st.form_submit_button("Save test", disabled=reviewing)
 
     if saved:
         settings = dict(old.settings)
