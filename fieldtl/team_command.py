@@ -141,21 +141,23 @@ def _offline(args: argparse.Namespace, account: Any) -> int:
     return 0
 
 
+def _given(name: str, variable: str) -> str | None:
+    """The password set in ``variable`` (for scripts), or None when a terminal can ask for it."""
+    given = os.environ.get(variable)
+    if given is None and not sys.stdin.isatty():
+        raise InputError(f"team: no terminal to ask {name}'s password; set {variable}")
+    return given
+
+
 def _password(name: str, *, ask: Any = getpass.getpass) -> str:
-    given = os.environ.get(LOGIN_VARIABLE)
-    if given is not None:
-        return given
-    if not sys.stdin.isatty():
-        raise InputError(f"team: no terminal to ask {name}'s password; set {LOGIN_VARIABLE}")
-    return ask(f"Password for {name}: ")
+    given = _given(name, LOGIN_VARIABLE)
+    return given if given is not None else ask(f"Password for {name}: ")
 
 
 def _new_password(name: str, *, ask: Any = getpass.getpass) -> str:
-    given = os.environ.get(PASSWORD_VARIABLE)
+    given = _given(name, PASSWORD_VARIABLE)
     if given is not None:
         return given
-    if not sys.stdin.isatty():
-        raise InputError(f"team: no terminal to ask {name}'s password; set {PASSWORD_VARIABLE}")
     first = ask(f"Password for {name}: ")
     if ask("Same password again: ") != first:
         raise InputError("team: the two passwords differ; nothing was created")
